@@ -1,0 +1,100 @@
+"""The record of a batch of closed-loop runs.
+
+All per-run arrays are batch-first: ``(batch, n_t)``. Angles in radians,
+rates in rad/s, time in seconds.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+__all__ = ["Trace"]
+
+
+@dataclass(frozen=True)
+class Trace:
+    """Time histories of a batch of runs on the base-step grid.
+
+    Attributes
+    ----------
+    t : (n_t,) s
+        Base-step time grid, ``t[0] = 0``.
+    bank_cmd : (batch, n_t) rad
+        Commanded bank angle.
+    bank : (batch, n_t) rad
+        True bank angle.
+    bank_meas : (batch, n_t) rad
+        Bank reading the controller last used (held between controller ticks).
+    valid : (batch, n_t) bool
+        Whether the newest reading delivered to the controller was valid.
+    age : (batch, n_t) s
+        Age of the newest valid reading at the controller (``inf`` if none yet).
+    roll_rate : (batch, n_t) rad/s
+        True roll rate.
+    aileron : (batch, n_t) rad
+        Aileron position (actuator output).
+    aileron_cmd : (batch, n_t) rad
+        Aileron command from the controller.
+    states : (batch, n_t, n_x) or None
+        Full plant state, when recorded.
+    state_names : tuple of str
+        Names of the plant states.
+    diverged_at : (batch,) s
+        Time the run was declared diverged, ``inf`` if it did not diverge.
+    run_index : (batch,) int
+        Index of each run in the Monte Carlo set (for replay).
+    seed : int
+        Run seed.
+    """
+
+    t: np.ndarray
+    bank_cmd: np.ndarray
+    bank: np.ndarray
+    bank_meas: np.ndarray
+    valid: np.ndarray
+    age: np.ndarray
+    roll_rate: np.ndarray
+    aileron: np.ndarray
+    aileron_cmd: np.ndarray
+    states: np.ndarray | None
+    state_names: tuple[str, ...]
+    diverged_at: np.ndarray
+    run_index: np.ndarray
+    seed: int
+
+    @property
+    def batch(self) -> int:
+        return int(self.bank.shape[0])
+
+    @property
+    def dt(self) -> float:
+        return float(self.t[1] - self.t[0])
+
+    @property
+    def diverged(self) -> np.ndarray:
+        """(batch,) bool: runs that diverged."""
+        return np.isfinite(self.diverged_at)
+
+    def select(self, rows: np.ndarray | slice | int) -> Trace:
+        """A trace holding only some runs of the batch."""
+        if isinstance(rows, int):
+            rows = slice(rows, rows + 1)
+        pick = lambda a: None if a is None else a[rows]  # noqa: E731
+        return Trace(
+            t=self.t,
+            bank_cmd=pick(self.bank_cmd),
+            bank=pick(self.bank),
+            bank_meas=pick(self.bank_meas),
+            valid=pick(self.valid),
+            age=pick(self.age),
+            roll_rate=pick(self.roll_rate),
+            aileron=pick(self.aileron),
+            aileron_cmd=pick(self.aileron_cmd),
+            states=pick(self.states),
+            state_names=self.state_names,
+            diverged_at=pick(self.diverged_at),
+            run_index=pick(self.run_index),
+            seed=self.seed,
+        )
