@@ -25,18 +25,20 @@ class Trace:
         Commanded bank angle.
     bank : (batch, n_t) rad
         True bank angle.
-    bank_meas : (batch, n_t) rad
-        Bank reading the controller last used (held between controller ticks).
-    valid : (batch, n_t) bool
-        Whether the newest reading delivered to the controller was valid.
-    age : (batch, n_t) s
-        Age of the newest valid reading at the controller (``inf`` if none yet).
     roll_rate : (batch, n_t) rad/s
         True roll rate.
     aileron : (batch, n_t) rad
         Aileron position (actuator output).
-    aileron_cmd : (batch, n_t) rad
-        Aileron command from the controller.
+    t_ctrl : (n_c,) s
+        Controller tick times (a subset of ``t``).
+    bank_meas : (batch, n_c) rad
+        Bank reading the controller used at each tick.
+    valid : (batch, n_c) bool
+        Whether the newest frame delivered to the controller was valid.
+    age : (batch, n_c) s
+        Age of the reading used at each tick (``inf`` before the first one).
+    aileron_cmd : (batch, n_c) rad
+        Aileron command from the controller at each tick.
     states : (batch, n_t, n_x) or None
         Full plant state, when recorded.
     state_names : tuple of str
@@ -52,11 +54,12 @@ class Trace:
     t: np.ndarray
     bank_cmd: np.ndarray
     bank: np.ndarray
+    roll_rate: np.ndarray
+    aileron: np.ndarray
+    t_ctrl: np.ndarray
     bank_meas: np.ndarray
     valid: np.ndarray
     age: np.ndarray
-    roll_rate: np.ndarray
-    aileron: np.ndarray
     aileron_cmd: np.ndarray
     states: np.ndarray | None
     state_names: tuple[str, ...]
@@ -86,11 +89,12 @@ class Trace:
             t=self.t,
             bank_cmd=pick(self.bank_cmd),
             bank=pick(self.bank),
+            roll_rate=pick(self.roll_rate),
+            aileron=pick(self.aileron),
+            t_ctrl=self.t_ctrl,
             bank_meas=pick(self.bank_meas),
             valid=pick(self.valid),
             age=pick(self.age),
-            roll_rate=pick(self.roll_rate),
-            aileron=pick(self.aileron),
             aileron_cmd=pick(self.aileron_cmd),
             states=pick(self.states),
             state_names=self.state_names,
