@@ -1,0 +1,1 @@
+"""The ``rollrig`` command line."""

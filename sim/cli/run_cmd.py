@@ -1,0 +1,94 @@
+"""``rollrig run FILE``: simulate a scenario, print its table, write its folder."""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from pathlib import Path
+
+from sim.errors import UserInputError
+
+__all__ = ["add_parser", "run"]
+
+
+def add_parser(sub) -> None:
+    p = sub.add_parser("run", help="simulate a scenario and report metrics",
+                       description="Simulate a scenario's Monte Carlo batch, print metrics, write an output folder.")
+    p.add_argument("scenario", metavar="FILE", help="scenario file (TOML)")
+    p.add_argument("--runs", type=int, help="number of Monte Carlo runs (overrides [run] runs)")
+    p.add_argument("--seed", type=int, help="run seed (overrides [run] seed)")
+    p.add_argument("--replay", type=int, metavar="N", help="replay run N of the Monte Carlo set alone")
+    p.add_argument("--out", type=Path, metavar="DIR", help="output folder (default rollrig-runs/<name>-<time>)")
+    p.add_argument("--force", action="store_true", help="replace an existing output folder")
+    p.add_argument("--no-files", action="store_true", help="print the table only, write no folder")
+    p.add_argument("--format", choices=("table", "csv", "json", "md"), default="table",
+                   help="how to print the metrics (default: table)")
+    p.add_argument("--plot", action="store_true", help="also write PNG plots")
+    p.add_argument("--allow-code", action="store_true",
+                   help="allow the scenario to load a user controller class (runs your code)")
+    p.set_defaults(func=run)
+
+
+def run(args: argparse.Namespace) -> int:
+    from sim.report.outdir import check_out_dir, default_out_dir, output_folder
+    from sim.report.table import render
+    from sim.runner import run_scenario
+    from sim.scenario import load_scenario
+
+    sc = load_scenario(args.scenario)
+    changes = {}
+    if args.runs is not None:
+        if args.runs < 1:
+            raise UserInputError(f"--runs {args.runs}: allowed: 1 ≤ runs ≤ 100000")
+        changes["runs"] = args.runs
+    if args.seed is not None:
+        if args.seed < 0:
+            raise UserInputError(f"--seed {args.seed}: allowed: seed ≥ 0")
+        changes["seed"] = args.seed
+    if changes:
+        sc = sc.with_run(**changes)
+    if args.replay is not None:
+        if not 0 <= args.replay < sc.run.runs:
+            raise UserInputError(f"--replay {args.replay}: allowed: 0 ≤ N < {sc.run.runs} (the runs of this set)")
+        runs = [args.replay]
+    else:
+        runs = list(range(sc.run.runs))
+
+    out_dir = None
+    if not args.no_files:
+        out_dir = args.out or default_out_dir(Path(sc.path).stem)
+        check_out_dir(out_dir, args.force)
+
+    outcome = run_scenario(sc, allow_code=args.allow_code, run_indices=runs)
+
+    from sim.report.run_tables import run_tables
+
+    tables = run_tables(outcome)
+    text = render(tables, args.format)
+    if text is not None:
+        sys.stdout.write(text)
+
+    if out_dir is not None:
+        from sim.report.run_files import write_run_files
+
+        with output_folder(out_dir, force=args.force) as tmp:
+            write_run_files(tmp, outcome, run_indices=runs)
+            (tmp / "metrics.md").write_text(render(tables, "md"))
+            if args.plot:
+                _plots(tmp, outcome)
+        print(f"wrote {out_dir}/", file=sys.stderr if args.format != "table" else sys.stdout)
+    return 0
+
+
+def _plots(folder: Path, outcome) -> None:
+    from sim.report.plots import plot_aileron, plot_bank, plot_envelope
+
+    sc, tr = outcome.scenario, outcome.trace
+    worst = 0
+    plot_bank(tr, folder / "bank.png", run=worst, bank_limit_rad=sc.criteria.bank_limit_rad,
+              title=f"{sc.title}: bank angle, run {int(tr.run_index[worst])}")
+    plot_aileron(tr, folder / "aileron.png", run=worst, limit_rad=sc.actuator.limit_rad,
+                 title=f"{sc.title}: aileron, run {int(tr.run_index[worst])}")
+    if tr.batch > 1:
+        plot_envelope(tr, folder / "envelope.png", bank_limit_rad=sc.criteria.bank_limit_rad,
+                      title=f"{sc.title}: bank envelope, {tr.batch} runs")

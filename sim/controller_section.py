@@ -1,0 +1,118 @@
+"""The ``[controller]`` section: a bundled PID, or the user's own class.
+
+A user class (``kind = "custom"``, ``class = "package.module:Name"``) runs
+the user's code, so loading it needs the command line's explicit permission
+(``--allow-code``); a scenario file alone never makes rollrig import code.
+"""
+
+from __future__ import annotations
+
+import importlib
+import math
+from dataclasses import dataclass, field
+from typing import Any
+
+from controllers.base import Controller
+from controllers.pid import PIDConfig, PIDController
+
+from .errors import ScenarioError
+from .section import Section
+
+__all__ = ["ControllerSpec", "parse_controller", "make_controller"]
+
+KINDS = ("pid", "custom")
+
+
+@dataclass(frozen=True)
+class ControllerSpec:
+    """Which controller to build, and at what rate.
+
+    Parameters
+    ----------
+    kind : {"pid", "custom"}
+    rate_hz : Hz
+        Controller rate (a whole number of base steps per tick).
+    pid : PIDConfig or None
+        Gains for ``kind = "pid"``.
+    class_path : str or None
+        ``module:Class`` for ``kind = "custom"``.
+    params : dict
+        Keyword arguments for the custom class.
+    """
+
+    kind: str
+    rate_hz: float
+    pid: PIDConfig | None = None
+    class_path: str | None = None
+    params: dict[str, Any] = field(default_factory=dict)
+    file: str = "<scenario>"
+
+
+def parse_controller(sec: Section, *, base_step_s: float, aileron_limit_rad: float) -> ControllerSpec:
+    kind = sec.string("kind", "pid", choices=KINDS)
+    rate = sec.number("rate_hz", 50.0, lo=0.1, hi=1.0 / base_step_s)
+    ratio = 1.0 / (rate * base_step_s)
+    if abs(ratio - round(ratio)) > 1e-6:
+        raise sec.error(
+            "rate_hz",
+            f"= {rate:g} is not a whole fraction of the base rate {1 / base_step_s:g} Hz; "
+            f"allowed: {1 / base_step_s:g}/n Hz for whole n",
+        )
+    if kind == "pid":
+        lim_deg = math.degrees(aileron_limit_rad)
+        deriv = sec.string("derivative", "measurement", choices=("measurement", "gyro"))
+        pid = PIDConfig(
+            kp=sec.number("kp", lo=0.0, hi=100.0),
+            ki_per_s=sec.number("ki_per_s", 0.0, lo=0.0, hi=100.0),
+            kd_s=sec.number("kd_s", 0.0, lo=0.0, hi=100.0),
+            derivative_source=deriv,
+            derivative_filter_hz=sec.number("derivative_filter_hz", 5.0, lo=0.01, hi=0.5 * rate),
+            output_limit_rad=math.radians(
+                sec.number("output_limit_deg", lim_deg, lo=0.0, hi=90.0, lo_open=True)
+            ),
+            integrator_limit_rad=math.radians(
+                sec.number("integrator_limit_deg", min(10.0, lim_deg), lo=0.0, hi=90.0)
+            ),
+            stale_after_s=sec.number("stale_after_s", 0.25, lo=0.0, hi=60.0, lo_open=True),
+            hold_s=sec.number("hold_s", 0.5, lo=0.0, hi=60.0),
+            fade_s=sec.number("fade_s", 1.0, lo=0.0, hi=60.0),
+        )
+        sec.finish()
+        return ControllerSpec(kind=kind, rate_hz=rate, pid=pid, file=sec.file)
+    path = sec.string("class")
+    if path.count(":") != 1 or not all(path.split(":")):
+        raise sec.error("class", f"= {path!r}; allowed: \"package.module:ClassName\"")
+    params = sec.mapping("params")
+    sec.finish()
+    return ControllerSpec(kind=kind, rate_hz=rate, class_path=path, params=params, file=sec.file)
+
+
+def make_controller(spec: ControllerSpec, *, allow_code: bool = False) -> Controller:
+    """Instantiate the controller a spec names.
+
+    Raises
+    ------
+    ScenarioError
+        For a custom class when ``allow_code`` is false, or when it cannot be
+        imported or built.
+    """
+    if spec.kind == "pid":
+        return PIDController(spec.pid)
+    where = f"{spec.file}: [controller] class"
+    if not allow_code:
+        raise ScenarioError(
+            f"{where} = {spec.class_path!r} would run your own code; "
+            "allowed only with --allow-code on the command line"
+        )
+    mod_name, cls_name = spec.class_path.split(":")
+    try:
+        cls = getattr(importlib.import_module(mod_name), cls_name)
+    except (ImportError, AttributeError) as exc:
+        raise ScenarioError(f"{where} = {spec.class_path!r} cannot be imported: {exc}") from None
+    try:
+        ctrl = cls(**spec.params)
+    except TypeError as exc:
+        raise ScenarioError(f"{spec.file}: [controller.params] do not fit {cls_name}: {exc}") from None
+    if not isinstance(ctrl, Controller):
+        raise ScenarioError(f"{where} = {spec.class_path!r} lacks reset(batch) and step(obs) methods")
+    return ctrl

@@ -1,0 +1,304 @@
+"""The stepping core: plant, actuator, camera reader, gyro and controller.
+
+Everything that runs the closed loop (the CLI, Monte Carlo, tuning, margins
+by experiment, the gym environment) drives :class:`Stepper`. It is
+batch-first: the state is ``(batch, n_x)`` and one Python loop over base steps
+advances every run at once.
+
+Timing on the base-step grid ``t_k = k·dt``, within step ``k``:
+
+1. frames due at ``k`` are captured from the true bank ``φ_k``; the gyro
+   samples ``p_k`` if due;
+2. at a controller tick the controller sees the newest delivered reading and
+   returns an aileron command, held until the next tick;
+3. the servo moves from ``δ_k`` to ``δ_{k+1}``; the plant advances by the exact
+   zero-order-hold step with the mean servo position ``(δ_k + δ_{k+1})/2``
+   over the step (second-order accurate in ``dt``) plus the disturbance inputs.
+
+A run whose ``|φ|`` exceeds ``divergence_rad`` (or whose controller returns a
+non-finite command) is declared diverged at that time and frozen there.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from controllers.base import Controller, Observation
+from sensors.camera import CameraConfig, CameraReader
+from sensors.gyro import GyroConfig, RateGyro
+
+from .actuator import ActuatorSpec
+from .disturbance import DisturbanceSet
+from .plant import LinearPlant, discretize
+from .seeding import run_generators
+from .trace import Trace
+
+__all__ = ["LoopSetup", "Stepper", "simulate"]
+
+_BLOCK = 512  # base steps of disturbance fetched at once
+
+
+@dataclass(frozen=True)
+class LoopSetup:
+    """Everything needed to run the closed loop except the controller.
+
+    Parameters
+    ----------
+    plant : LinearPlant
+        Continuous lateral model (SI).
+    dt : s
+        Base step.
+    n_steps : int
+        Number of base steps (duration = ``n_steps·dt``).
+    ctrl_every : int
+        Controller period in base steps.
+    actuator, camera, gyro
+        Servo, camera-reader and (optional) gyro parameters.
+    bank_cmd : (n_steps + 1,) rad
+        Bank command on the base grid.
+    x0 : (n_x,)
+        Initial plant state (SI).
+    disturbances : sequence of DisturbanceSource
+        Disturbance sources (summed).
+    divergence_rad : rad
+        |bank| beyond which a run is declared diverged.
+    """
+
+    plant: LinearPlant
+    dt: float
+    n_steps: int
+    ctrl_every: int
+    actuator: ActuatorSpec
+    camera: CameraConfig
+    bank_cmd: np.ndarray
+    x0: np.ndarray
+    gyro: GyroConfig | None = None
+    disturbances: Sequence = field(default_factory=tuple)
+    divergence_rad: float = math.pi
+
+    @property
+    def duration_s(self) -> float:
+        return self.n_steps * self.dt
+
+    @property
+    def tick_steps(self) -> np.ndarray:
+        return np.arange(0, self.n_steps, self.ctrl_every)
+
+
+class Stepper:
+    """Stateful shell around the loop; one instance per batch at a time."""
+
+    def __init__(self, setup: LoopSetup) -> None:
+        self.setup = setup
+        dp = discretize(setup.plant, setup.dt)
+        # state kept transposed, (n_x + 1, batch): the extra row carries the
+        # servo position held over the step, so one matmul advances the plant
+        self._m = np.ascontiguousarray(np.hstack([dp.ad, dp.bd_control[:, :1]]))
+        self._bd = np.ascontiguousarray(dp.bd_disturbance)
+        self._nx = setup.plant.n_states
+        self._alpha = setup.actuator.gain_per_step(setup.dt)
+        self._phi = setup.plant.phi_index
+        self._p = setup.plant.p_index
+
+    # -------------------------------------------------------------- start
+    def reset(
+        self, seed: int, run_indices: Sequence[int], *, record_states: bool = False
+    ) -> Observation:
+        """Start a batch; returns the observation at the first tick."""
+        s = self.setup
+        runs = np.asarray(run_indices, dtype=np.int64)
+        batch = runs.size
+        self.seed, self.runs, self.batch = int(seed), runs, batch
+        rng_for = lambda name: run_generators(seed, runs, name)  # noqa: E731
+        n = s.n_steps
+        self.camera = CameraReader(s.camera, s.dt)
+        self.camera.reset(n, s.tick_steps, batch, rng_for)
+        self.gyro = RateGyro(s.gyro, s.dt) if s.gyro is not None else None
+        if self.gyro is not None:
+            self.gyro.reset(n, batch, rng_for)
+        self.dist = DisturbanceSet(s.disturbances)
+        self.dist.reset(s.dt, rng_for)
+        self._dist_eff = None
+
+        nx = self._nx
+        self._X = np.zeros((nx + 1, batch))
+        self._X[:nx] = np.asarray(s.x0, float)[:, None]
+        self._Y = np.zeros_like(self._X)
+        self.delta = np.zeros(batch)
+        self.k = 0
+        self.tick = 0
+        self.alive = np.ones(batch, dtype=bool)
+        self.diverged_at = np.full(batch, np.inf)
+
+        n_ticks = len(s.tick_steps)
+        self.rec_bank = np.empty((n + 1, batch))
+        self.rec_rate = np.empty((n + 1, batch))
+        self.rec_ail = np.empty((n + 1, batch))
+        self.rec_states = np.empty((n + 1, batch, s.plant.n_states)) if record_states else None
+        self.rec_meas = np.empty((n_ticks, batch))
+        self.rec_valid = np.empty((n_ticks, batch), dtype=bool)
+        self.rec_age = np.empty((n_ticks, batch))
+        self.rec_cmd = np.empty((n_ticks, batch))
+        self._record(0)
+        self._sense(0)
+        return self.observe()
+
+    # -------------------------------------------------------------- loop
+    @property
+    def done(self) -> bool:
+        return self.k >= self.setup.n_steps
+
+    def observe(self) -> Observation:
+        """The controller's view at the current tick."""
+        s = self.setup
+        t = self.k * s.dt
+        bank, valid, age = self.camera.read(t)
+        self._obs_rec = (bank, valid, age)
+        return Observation(
+            t=t,
+            dt=s.ctrl_every * s.dt,
+            bank=bank,
+            valid=valid,
+            age=age,
+            bank_cmd=np.full(self.batch, s.bank_cmd[self.k]),
+            rate=None if self.gyro is None else self.gyro.read(),
+        )
+
+    def advance(self, u_cmd: np.ndarray) -> Observation | None:
+        """Apply an aileron command (rad, (batch,)) until the next tick.
+
+        Returns the next observation, or ``None`` when the run is over.
+        """
+        s = self.setup
+        u = np.asarray(u_cmd, dtype=float)
+        u = np.broadcast_to(u, (self.batch,))
+        bad_u = ~np.isfinite(u)
+        if bad_u.any():
+            self._diverge(bad_u)
+            u = np.where(bad_u, 0.0, u)
+        j = self.tick
+        bank, valid, age = self._obs_rec
+        self.rec_meas[j], self.rec_valid[j], self.rec_age[j], self.rec_cmd[j] = bank, valid, age, u
+        self.tick += 1
+
+        m, nx, phi, p = self._m, self._nx, self._phi, self._p
+        alpha, dt = self._alpha, s.dt
+        lim = s.actuator.limit_rad
+        max_change = s.actuator.rate_limit_rad_s * dt
+        rate_limited = math.isfinite(max_change)
+        stop = min(self.k + s.ctrl_every, s.n_steps)
+        frozen = not self.alive.all()
+        captures, camera = self.camera.captures, self.camera
+        gyro = self.gyro
+        rec_bank, rec_rate, rec_ail, rec_states = (
+            self.rec_bank, self.rec_rate, self.rec_ail, self.rec_states
+        )
+        X, Y, delta = self._X, self._Y, self.delta
+        for k in range(self.k, stop):
+            # servo: exact first-order lag, then rate and position limits
+            change = alpha * (u - delta)
+            if rate_limited:
+                change = np.minimum(np.maximum(change, -max_change), max_change)
+            new_delta = np.minimum(np.maximum(delta + change, -lim), lim)
+            X[nx] = 0.5 * (delta + new_delta)
+            np.matmul(m, X, out=Y[:nx])
+            if self.dist:
+                Y[:nx] += self._disturbance_row(k)
+            if frozen:
+                Y[:nx] = np.where(self.alive, Y[:nx], X[:nx])
+            X, Y, delta = Y, X, new_delta
+            j = k + 1
+            bank = X[phi]
+            rec_bank[j] = bank
+            rec_rate[j] = X[p]
+            rec_ail[j] = delta
+            if rec_states is not None:
+                rec_states[j] = X[:nx].T
+            if j in captures:
+                camera.capture(j, bank)
+            if gyro is not None:
+                gyro.sample(j, X[p])
+        self._X, self._Y, self.delta, self.k = X, Y, delta, stop
+        runaway = self.alive & ~(np.abs(X[phi]) < s.divergence_rad)
+        if runaway.any():
+            self._diverge(runaway)
+        if self.done:
+            return None
+        return self.observe()
+
+    # -------------------------------------------------------------- helpers
+    @property
+    def x(self) -> np.ndarray:
+        """Current plant state, ``(batch, n_x)`` (a copy)."""
+        return self._X[: self._nx].T.copy()
+
+    def _record(self, k: int) -> None:
+        X = self._X
+        self.rec_bank[k] = X[self._phi]
+        self.rec_rate[k] = X[self._p]
+        self.rec_ail[k] = self.delta
+        if self.rec_states is not None:
+            self.rec_states[k] = X[: self._nx].T
+
+    def _sense(self, k: int) -> None:
+        self.camera.capture(k, self._X[self._phi])
+        if self.gyro is not None:
+            self.gyro.sample(k, self._X[self._p])
+
+    def _disturbance_row(self, k: int) -> np.ndarray:
+        if self._dist_eff is None or not (self._d0 <= k < self._d0 + len(self._dist_eff)):
+            self._d0 = k
+            n = min(_BLOCK, self.setup.n_steps - k)
+            raw = self.dist.block(k, n, self.batch)  # (n, batch, 4)
+            self._dist_eff = np.einsum("ij,nbj->nib", self._bd, raw)  # (n, n_x, batch)
+        return self._dist_eff[k - self._d0]
+
+    def _diverge(self, rows: np.ndarray) -> None:
+        rows = rows & self.alive
+        self.diverged_at[rows] = self.k * self.setup.dt
+        self.alive &= ~rows
+
+    def trace(self) -> Trace:
+        """The recorded batch (call when :attr:`done`)."""
+        s = self.setup
+        n_t = self.k + 1
+        t = np.arange(n_t) * s.dt
+        ticks = s.tick_steps[: self.tick]
+        return Trace(
+            t=t,
+            bank_cmd=np.broadcast_to(s.bank_cmd[:n_t], (self.batch, n_t)),
+            bank=self.rec_bank[:n_t].T,
+            roll_rate=self.rec_rate[:n_t].T,
+            aileron=self.rec_ail[:n_t].T,
+            t_ctrl=ticks * s.dt,
+            bank_meas=self.rec_meas[: self.tick].T,
+            valid=self.rec_valid[: self.tick].T,
+            age=self.rec_age[: self.tick].T,
+            aileron_cmd=self.rec_cmd[: self.tick].T,
+            states=None if self.rec_states is None else self.rec_states[:n_t].transpose(1, 0, 2),
+            state_names=s.plant.state_names,
+            diverged_at=self.diverged_at.copy(),
+            run_index=self.runs.copy(),
+            seed=self.seed,
+        )
+
+
+def simulate(
+    setup: LoopSetup,
+    controller: Controller,
+    *,
+    seed: int,
+    run_indices: Sequence[int] = (0,),
+    record_states: bool = False,
+) -> Trace:
+    """Run a batch of closed-loop runs and return their trace."""
+    stepper = Stepper(setup)
+    obs = stepper.reset(seed, run_indices, record_states=record_states)
+    controller.reset(stepper.batch)
+    while obs is not None:
+        obs = stepper.advance(controller.step(obs))
+    return stepper.trace()

@@ -1,0 +1,107 @@
+"""PNG plots of a batch (matplotlib, Agg backend, imported only when plotting)."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+
+from sim.trace import Trace
+
+__all__ = ["plot_bank", "plot_aileron", "plot_envelope", "pyplot"]
+
+_DEG = 180.0 / np.pi
+
+
+def pyplot():
+    """matplotlib.pyplot on the Agg backend (no display needed)."""
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    return plt
+
+
+def _invalid_spans(t_ctrl: np.ndarray, valid: np.ndarray) -> list[tuple[float, float]]:
+    """Time spans where the newest delivered frame was invalid."""
+    bad = ~valid.astype(bool)
+    if not bad.any():
+        return []
+    edges = np.diff(np.concatenate([[0], bad.astype(int), [0]]))
+    starts, ends = np.flatnonzero(edges == 1), np.flatnonzero(edges == -1)
+    dt = t_ctrl[1] - t_ctrl[0] if t_ctrl.size > 1 else 0.0
+    return [(t_ctrl[s], t_ctrl[e - 1] + dt) for s, e in zip(starts, ends, strict=True)]
+
+
+def plot_bank(trace: Trace, path: Path, *, run: int = 0, bank_limit_rad: float | None = None,
+              title: str = "") -> None:
+    """True, measured and commanded bank of one run; invalid frames shaded."""
+    plt = pyplot()
+    fig, ax = plt.subplots(figsize=(10, 4.2), layout="constrained")
+    for i, (a, b) in enumerate(_invalid_spans(trace.t_ctrl, trace.valid[run])):
+        ax.axvspan(a, b, color="0.85", lw=0, label="invalid or lost frame" if i == 0 else None)
+    reading = np.where(np.isfinite(trace.age[run]), trace.bank_meas[run] * _DEG, np.nan)
+    ax.step(trace.t_ctrl, reading, where="post", color="tab:orange", lw=1.0,
+            label="camera reading used")
+    ax.plot(trace.t, trace.bank[run] * _DEG, color="tab:blue", lw=1.6, label="true bank")
+    ax.plot(trace.t, trace.bank_cmd[run] * _DEG, color="k", lw=1.0, ls="--", label="command")
+    if bank_limit_rad is not None:
+        for s in (1, -1):
+            ax.axhline(s * bank_limit_rad * _DEG, color="tab:red", lw=0.8, ls=":",
+                       label="bank limit" if s == 1 else None)
+    if np.isfinite(trace.diverged_at[run]):
+        ax.axvline(trace.diverged_at[run], color="tab:red", lw=1.5, label="diverged")
+    ax.set_xlabel("time (s)")
+    ax.set_ylabel("bank angle (deg, right wing down +)")
+    ax.set_title(title or f"bank angle, run {int(trace.run_index[run])}")
+    ax.grid(alpha=0.3)
+    ax.legend(loc="best", fontsize=8)
+    fig.savefig(path, dpi=110)
+    plt.close(fig)
+
+
+def plot_aileron(trace: Trace, path: Path, *, run: int = 0, limit_rad: float, title: str = "") -> None:
+    """Aileron position and command of one run, with the position limits."""
+    plt = pyplot()
+    fig, ax = plt.subplots(figsize=(10, 3.4), layout="constrained")
+    ax.step(trace.t_ctrl, trace.aileron_cmd[run] * _DEG, where="post", color="tab:gray", lw=0.9,
+            label="command")
+    ax.plot(trace.t, trace.aileron[run] * _DEG, color="tab:green", lw=1.4, label="position")
+    for s in (1, -1):
+        ax.axhline(s * limit_rad * _DEG, color="tab:red", lw=0.8, ls=":", label="travel limit" if s == 1 else None)
+    ax.set_xlabel("time (s)")
+    ax.set_ylabel("aileron (deg)")
+    ax.set_title(title or f"aileron, run {int(trace.run_index[run])}")
+    ax.grid(alpha=0.3)
+    ax.legend(loc="best", fontsize=8)
+    fig.savefig(path, dpi=110)
+    plt.close(fig)
+
+
+def plot_envelope(trace: Trace, path: Path, *, bank_limit_rad: float | None = None, title: str = "") -> None:
+    """Percentile bands of bank over time across the runs that did not diverge."""
+    plt = pyplot()
+    keep = ~trace.diverged
+    fig, ax = plt.subplots(figsize=(10, 4.2), layout="constrained")
+    if keep.any():
+        b = trace.bank[keep] * _DEG
+        p = np.percentile(b, [0, 5, 25, 50, 75, 95, 100], axis=0)
+        ax.fill_between(trace.t, p[0], p[6], color="tab:blue", alpha=0.12, lw=0, label="min–max")
+        ax.fill_between(trace.t, p[1], p[5], color="tab:blue", alpha=0.25, lw=0, label="5–95 %")
+        ax.fill_between(trace.t, p[2], p[4], color="tab:blue", alpha=0.45, lw=0, label="25–75 %")
+        ax.plot(trace.t, p[3], color="tab:blue", lw=1.4, label="median")
+    ax.plot(trace.t, trace.bank_cmd[0] * _DEG, color="k", ls="--", lw=1.0, label="command")
+    if bank_limit_rad is not None:
+        for s in (1, -1):
+            ax.axhline(s * bank_limit_rad * _DEG, color="tab:red", lw=0.8, ls=":",
+                       label="bank limit" if s == 1 else None)
+    n_div = int((~keep).sum())
+    ax.set_title(title or f"bank envelope over {int(keep.sum())} runs"
+                 + (f" ({n_div} diverged, not shown)" if n_div else ""))
+    ax.set_xlabel("time (s)")
+    ax.set_ylabel("bank angle (deg)")
+    ax.grid(alpha=0.3)
+    ax.legend(loc="best", fontsize=8)
+    fig.savefig(path, dpi=110)
+    plt.close(fig)
