@@ -1,0 +1,734 @@
+"""Frequency response of the camera-in-the-loop bank-hold loop, and its margins.
+
+The loop is broken at the aileron command (the plant input). With the bank
+command at zero, an aileron command ``u`` travels
+
+    controller hold  e^{-s T/2}   (zero-order hold at period T: T/2 of effective delay)
+    → servo          1/(τa s + 1)
+    → plant          φ(s) = Gφ(s) u,  p(s) = Gp(s) u
+    → camera         e^{-s τc} φ       (latency + half a frame + exposure mid-point)
+    → gyro           e^{-s τg} p       (only when the gyro feeds the derivative)
+    → PID            u = kp e + ki ∫e − kd·(rate),  e = −(camera bank)
+
+so the loop transfer function (negative-feedback convention, ``1 + L = 0`` at
+instability) is a sum of paths, each a rational part times its own exact delay:
+
+* ``derivative_source = "measurement"``::
+
+      L = (kp + ki/s + kd s/(1 + s/ωf)) · A(s) Gφ(s) · e^{-s(τc + T/2)}
+
+* ``derivative_source = "gyro"``::
+
+      L = (kp + ki/s) · A(s) Gφ(s) · e^{-s(τc + T/2)}
+        + kd/(1 + s/ωf) · A(s) Gp(s) · e^{-s(τg + T/2)}
+
+(``A(s)`` is the servo lag, ``ωf = 2π·derivative_filter_hz``; the gyro reads the
+body roll rate ``p`` and its derivative term uses the same first-order filter as
+the controller in :mod:`controllers.pid`.)
+
+Which figure uses which model
+-----------------------------
+* Exact delays ``e^{-jωτ}`` on a dense log grid (rational parts evaluated with
+  :func:`control.frequency_response`), crossovers refined with
+  :func:`scipy.optimize.brentq`: gain and phase margins and their crossovers,
+  delay margin, disk margin, sensitivity peak, closed-loop bandwidth.
+* Padé approximation (:func:`control.pade`, order ``pade_order`` per delay,
+  default 6): only the closed-loop stability flag, from the eigenvalues of the
+  rational closed loop — a frequency response alone cannot tell whether the
+  loop it describes is stable. :func:`rational_loop` returns that model.
+"""
+
+from __future__ import annotations
+
+import math
+import os
+import tempfile
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import control as ct
+import numpy as np
+from scipy.optimize import brentq, minimize_scalar
+
+__all__ = [
+    "LoopParts",
+    "LoopMargins",
+    "DEFAULT_OMEGA",
+    "MIL_F_9490D_GAIN_MARGIN_DB",
+    "MIL_F_9490D_PHASE_MARGIN_DEG",
+    "open_loop_response",
+    "closed_loop_response",
+    "rational_loop",
+    "margins",
+    "plot_margins",
+]
+
+#: Default analysis grid, rad/s: 1e-3 … 1e3, 1000 points per decade.
+DEFAULT_OMEGA: np.ndarray = np.logspace(-3.0, 3.0, 6001)
+DEFAULT_OMEGA.setflags(write=False)
+
+#: MIL-F-9490D (1975) §3.1.3.6: ±6 dB gain margin, ±45° phase margin.
+MIL_F_9490D_GAIN_MARGIN_DB = 6.0
+MIL_F_9490D_PHASE_MARGIN_DEG = 45.0
+
+_DERIVATIVE_SOURCES = ("measurement", "gyro")
+#: Frequency treated as DC for the closed-loop reference level, rad/s.
+_OMEGA_DC = 1e-6
+
+
+def _nonneg(name: str, value: float) -> float:
+    value = float(value)
+    if not math.isfinite(value) or value < 0.0:
+        raise ValueError(f"LoopParts.{name} must be a finite number >= 0, got {value!r}")
+    return value
+
+
+@dataclass(frozen=True, eq=False)
+class LoopParts:
+    """Everything the linear loop analysis needs, as plain numbers and arrays.
+
+    Parameters
+    ----------
+    plant_a : (n, n) array_like, 1/s
+        Plant state matrix.
+    plant_b : (n,) array_like
+        Plant input column for the aileron (state rate per rad of aileron).
+    phi_index, p_index : int
+        Positions of bank angle φ (rad) and roll rate p (rad/s) in the state.
+    actuator_tau_s : float, s
+        First-order servo time constant (0 = no servo lag).
+    camera_delay_s : float, s
+        Total effective camera delay: processing latency + mean frame hold
+        (half a frame period) + exposure mid-point.
+    gyro_delay_s : float, s
+        Effective gyro delay (half its sample period); used only when
+        ``derivative_source == "gyro"``.
+    controller_dt_s : float, s
+        Controller sample period; its hold adds ``dt/2`` of effective delay.
+    kp : float, rad/rad
+        Proportional gain, aileron per bank error.
+    ki_per_s : float, 1/s
+        Integral gain.
+    kd_s : float, s
+        Derivative gain, aileron per bank rate (derivative on measurement).
+    derivative_filter_hz : float, Hz
+        Corner of the first-order filter on the rate, ``D(s) = s/(1 + s/ωf)``,
+        ``ωf = 2π f``. ``inf`` (no filter) is allowed only for the gyro source.
+    derivative_source : {"measurement", "gyro"}
+        Rate from the delayed camera bank or from the gyro's roll rate.
+    """
+
+    plant_a: np.ndarray
+    plant_b: np.ndarray
+    phi_index: int
+    p_index: int
+    actuator_tau_s: float = 0.0
+    camera_delay_s: float = 0.0
+    gyro_delay_s: float = 0.0
+    controller_dt_s: float = 0.0
+    kp: float = 1.0
+    ki_per_s: float = 0.0
+    kd_s: float = 0.0
+    derivative_filter_hz: float = 5.0
+    derivative_source: str = "measurement"
+
+    def __post_init__(self) -> None:
+        a = np.array(self.plant_a, dtype=float)
+        b = np.array(self.plant_b, dtype=float).reshape(-1)
+        if a.ndim != 2 or a.shape[0] != a.shape[1] or a.shape[0] == 0:
+            raise ValueError(f"LoopParts.plant_a must be square (n, n), got shape {a.shape}")
+        n = a.shape[0]
+        if b.shape != (n,):
+            raise ValueError(f"LoopParts.plant_b must have {n} entries, got shape {b.shape}")
+        if not (np.all(np.isfinite(a)) and np.all(np.isfinite(b))):
+            raise ValueError("LoopParts.plant_a and plant_b must be finite")
+        a.setflags(write=False)
+        b.setflags(write=False)
+        object.__setattr__(self, "plant_a", a)
+        object.__setattr__(self, "plant_b", b)
+        for name in ("phi_index", "p_index"):
+            idx = getattr(self, name)
+            if int(idx) != idx or not 0 <= int(idx) < n:
+                raise ValueError(
+                    f"LoopParts.{name} must be an integer in [0, {n - 1}], got {idx!r}"
+                )
+            object.__setattr__(self, name, int(idx))
+        for name in ("actuator_tau_s", "camera_delay_s", "gyro_delay_s", "controller_dt_s"):
+            object.__setattr__(self, name, _nonneg(name, getattr(self, name)))
+        for name in ("kp", "ki_per_s", "kd_s"):
+            value = float(getattr(self, name))
+            if not math.isfinite(value):
+                raise ValueError(f"LoopParts.{name} must be finite, got {value!r}")
+            object.__setattr__(self, name, value)
+        if self.derivative_source not in _DERIVATIVE_SOURCES:
+            raise ValueError(
+                f"LoopParts.derivative_source must be one of {_DERIVATIVE_SOURCES}, "
+                f"got {self.derivative_source!r}"
+            )
+        f = float(self.derivative_filter_hz)
+        if not f > 0.0 or (math.isinf(f) and self.derivative_source != "gyro"):
+            raise ValueError(
+                "LoopParts.derivative_filter_hz must be > 0 and finite "
+                f"(inf allowed only for the gyro source), got {f!r}"
+            )
+        object.__setattr__(self, "derivative_filter_hz", f)
+
+    @classmethod
+    def from_plant(cls, plant: Any, **kwargs: Any) -> LoopParts:
+        """Build from any object with ``a``, ``b_control`` (aileron in column 0),
+        ``phi_index`` and ``p_index`` (e.g. :class:`sim.plant.LinearPlant`)."""
+        b = np.asarray(plant.b_control, dtype=float)
+        b_ail = b[:, 0] if b.ndim == 2 else b
+        return cls(
+            plant_a=plant.a,
+            plant_b=b_ail,
+            phi_index=plant.phi_index,
+            p_index=plant.p_index,
+            **kwargs,
+        )
+
+
+# ---------------------------------------------------------------------------
+# Model assembly
+# ---------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class _Path:
+    rational: ct.TransferFunction  # SISO, aileron command → controller output
+    delay_s: float
+
+
+def _plant_output(parts: LoopParts, index: int) -> ct.StateSpace:
+    n = parts.plant_a.shape[0]
+    c = np.zeros((1, n))
+    c[0, index] = 1.0
+    return ct.ss(parts.plant_a, parts.plant_b.reshape(n, 1), c, 0.0)
+
+
+def _actuator(parts: LoopParts) -> ct.TransferFunction:
+    if parts.actuator_tau_s > 0.0:
+        return ct.tf([1.0], [parts.actuator_tau_s, 1.0])
+    return ct.tf([1.0], [1.0])
+
+
+def _controller_blocks(parts: LoopParts) -> tuple[ct.TransferFunction, ct.TransferFunction]:
+    """(controller acting on the camera bank, controller acting on the gyro rate)."""
+    wf = 2.0 * math.pi * parts.derivative_filter_hz
+    lowpass = ct.tf([1.0], [1.0]) if math.isinf(wf) else ct.tf([1.0], [1.0 / wf, 1.0])
+    cam = ct.tf([parts.kp], [1.0])
+    if parts.ki_per_s != 0.0:
+        cam = cam + ct.tf([parts.ki_per_s], [1.0, 0.0])
+    gyro = ct.tf([0.0], [1.0])
+    if parts.kd_s != 0.0:
+        if parts.derivative_source == "measurement":
+            cam = cam + ct.tf([parts.kd_s, 0.0], [1.0 / wf, 1.0])
+        else:
+            gyro = parts.kd_s * lowpass
+    return cam, gyro
+
+
+class _Evaluator:
+    """Rational parts of the loop, built once, evaluated with exact delays.
+
+    The rational parts are low-order transfer functions (plant ≤ a few states,
+    servo, PID), so :class:`control.TransferFunction` evaluation (vectorised
+    polynomial evaluation) is accurate and far faster than a per-frequency
+    state-space solve.
+    """
+
+    def __init__(self, parts: LoopParts) -> None:
+        cam_c, gyro_c = _controller_blocks(parts)
+        act = _actuator(parts)
+        hold = 0.5 * parts.controller_dt_s
+        g_phi = ct.tf(_plant_output(parts, parts.phi_index))
+        self.paths = [_Path(cam_c * act * g_phi, parts.camera_delay_s + hold)]
+        if parts.derivative_source == "gyro" and parts.kd_s != 0.0:
+            g_p = ct.tf(_plant_output(parts, parts.p_index))
+            self.paths.append(_Path(gyro_c * act * g_p, parts.gyro_delay_s + hold))
+        ref = ct.tf([parts.kp], [1.0])
+        if parts.ki_per_s != 0.0:
+            ref = ref + ct.tf([parts.ki_per_s], [1.0, 0.0])
+        self.forward = _Path(ref * act * g_phi, hold)
+
+    def loop(self, w: np.ndarray) -> np.ndarray:
+        total = np.zeros(w.shape, dtype=complex)
+        for path in self.paths:
+            total += _freq(path.rational, w) * np.exp(-1j * w * path.delay_s)
+        return total
+
+    def closed(self, w: np.ndarray, big_l: np.ndarray | None = None) -> np.ndarray:
+        if big_l is None:
+            big_l = self.loop(w)
+        fwd = _freq(self.forward.rational, w) * np.exp(-1j * w * self.forward.delay_s)
+        return fwd / (1.0 + big_l)
+
+    def loop1(self, x: float) -> complex:
+        return complex(self.loop(np.array([x]))[0])
+
+    def closed1(self, x: float) -> complex:
+        return complex(self.closed(np.array([x]))[0])
+
+
+def _freq(sys: ct.TransferFunction, omega: np.ndarray) -> np.ndarray:
+    return np.asarray(ct.frequency_response(sys, omega).complex, dtype=complex).reshape(-1)
+
+
+def _as_omega(omega: Any) -> np.ndarray:
+    w = np.atleast_1d(np.asarray(omega, dtype=float))
+    if w.ndim != 1 or not np.all(np.isfinite(w)) or np.any(w <= 0.0):
+        raise ValueError("omega must be a 1-D array of finite frequencies > 0 (rad/s)")
+    return w
+
+
+def open_loop_response(parts: LoopParts, omega: Any) -> np.ndarray:
+    """Loop transfer function ``L(jω)`` broken at the aileron command, exact delays.
+
+    Parameters
+    ----------
+    parts : LoopParts
+        The loop.
+    omega : array_like, rad/s
+        Frequencies (> 0).
+
+    Returns
+    -------
+    ndarray of complex
+        ``L(jω)``, same length as ``omega``, negative-feedback convention.
+    """
+    return _Evaluator(parts).loop(_as_omega(omega))
+
+
+def closed_loop_response(parts: LoopParts, omega: Any) -> np.ndarray:
+    """Bank-command-to-true-bank frequency response, exact delays.
+
+    The command enters the proportional and integral terms only (the derivative
+    acts on the measurement), so ``T(jω) = (kp + ki/jω)·e^{-jωT/2}·A·Gφ / (1 + L)``.
+
+    Parameters
+    ----------
+    parts : LoopParts
+        The loop.
+    omega : array_like, rad/s
+        Frequencies (> 0).
+
+    Returns
+    -------
+    ndarray of complex
+        ``φ/φ_cmd (jω)``. Meaningful only if the closed loop is stable.
+    """
+    return _Evaluator(parts).closed(_as_omega(omega))
+
+
+def rational_loop(parts: LoopParts, pade_order: int = 6) -> ct.StateSpace:
+    """Rational model of ``L(s)``: every delay replaced by a Padé approximant.
+
+    Parameters
+    ----------
+    parts : LoopParts
+        The loop.
+    pade_order : int
+        Order of :func:`control.pade` used for each delay (numerator and
+        denominator degree).
+
+    Returns
+    -------
+    control.StateSpace
+        SISO loop, aileron command → controller output (negative feedback).
+        Built as one chain (hold, servo, plant, sensors, controller), so the
+        plant dynamics appear once even when two sensor paths are summed.
+    """
+    def delay(tau: float) -> ct.StateSpace:
+        if tau <= 0.0:
+            return ct.ss([], [], [], [[1.0]])
+        # Realise the Padé approximant of a 1 s delay, then scale time: G(sτ) has the
+        # realisation (A/τ, B/τ, C, D). Realising ct.pade(τ, n) directly gives
+        # coefficients up to ~(n/τ)^n and a badly conditioned model for small τ.
+        unit = ct.ss(ct.tf(*ct.pade(1.0, pade_order)))
+        return ct.ss(unit.A / tau, unit.B / tau, unit.C, unit.D)
+
+    cam_c, gyro_c = _controller_blocks(parts)
+    hold = delay(0.5 * parts.controller_dt_s)
+    front = ct.ss(_actuator(parts)) * hold
+    n = parts.plant_a.shape[0]
+    if parts.derivative_source == "gyro" and parts.kd_s != 0.0:
+        c = np.zeros((2, n))
+        c[0, parts.phi_index] = 1.0
+        c[1, parts.p_index] = 1.0
+        plant = ct.ss(parts.plant_a, parts.plant_b.reshape(n, 1), c, np.zeros((2, 1)))
+        sensors = ct.append(delay(parts.camera_delay_s), delay(parts.gyro_delay_s))
+        ctrl = ct.append(ct.ss(cam_c), ct.ss(gyro_c))
+        summer = ct.ss([], [], [], [[1.0, 1.0]])
+        return summer * ctrl * sensors * plant * front
+    g_phi = _plant_output(parts, parts.phi_index)
+    return ct.ss(cam_c) * delay(parts.camera_delay_s) * g_phi * front
+
+
+# ---------------------------------------------------------------------------
+# Margins
+# ---------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class LoopMargins:
+    """Stability margins of the loop broken at the aileron command.
+
+    Attributes
+    ----------
+    gain_margin_db : float, dB
+        Classical gain margin at the phase crossover whose margin is smallest
+        in magnitude (python-control's choice); negative means a gain
+        *reduction* reaches instability. ``inf`` if the phase never crosses −180°.
+    phase_crossover_rad_s : float, rad/s
+        Frequency of that crossover (``nan`` if none).
+    upper_gain_margin_db, lower_gain_margin_db : float, dB
+        Smallest gain increase (≥ 0 dB, ``inf`` if none) and smallest gain
+        reduction (≤ 0 dB, ``-inf`` if none) that put ``L`` through −1.
+    phase_margin_deg : float, deg
+        Phase margin at the gain crossover whose margin is smallest in
+        magnitude, in (−180, 180]. ``inf`` if ``|L|`` never crosses 1.
+    gain_crossover_rad_s : float, rad/s
+        Frequency of that crossover (``nan`` if none).
+    delay_margin_s : float, s
+        Smallest extra pure delay that makes ``L`` touch −1: min over gain
+        crossovers of (phase margin wrapped to [0, 2π)) / ωc (``inf`` if no
+        crossover, 0 if the loop is already unstable).
+    delay_margin_camera_multiple : float
+        ``delay_margin_s / camera_delay_s`` (``inf`` if no camera delay).
+    disk_alpha : float
+        Balanced (σ = 0) disk margin α = 1 / ‖(S − T)/2‖∞.
+    disk_gain_margin_db : float, dB
+        Gain variation allowed by the disk, ``20 log10((2 + α)/(2 − α))``
+        (the same in dB downwards); ``inf`` if α ≥ 2.
+    disk_phase_margin_deg : float, deg
+        Phase variation allowed by the disk, ``2 atan(α/2)``.
+    disk_frequency_rad_s : float, rad/s
+        Frequency where ``|S − T|/2`` peaks.
+    sensitivity_peak_db : float, dB
+        ``max |S(jω)|`` on the grid (refined).
+    bandwidth_rad_s : float, rad/s
+        Lowest frequency where the command-to-bank response falls 3 dB below
+        its DC level (``inf`` if it never does on the grid).
+    closed_loop_stable : bool
+        From the eigenvalues of the Padé closed loop (order ``pade_order``).
+    pade_order : int
+        Padé order used for the stability flag.
+    phase_crossovers_rad_s, gain_crossovers_rad_s : tuple of float, rad/s
+        All crossovers found on the grid.
+    """
+
+    gain_margin_db: float
+    phase_crossover_rad_s: float
+    upper_gain_margin_db: float
+    lower_gain_margin_db: float
+    phase_margin_deg: float
+    gain_crossover_rad_s: float
+    delay_margin_s: float
+    delay_margin_camera_multiple: float
+    disk_alpha: float
+    disk_gain_margin_db: float
+    disk_phase_margin_deg: float
+    disk_frequency_rad_s: float
+    sensitivity_peak_db: float
+    bandwidth_rad_s: float
+    closed_loop_stable: bool
+    pade_order: int
+    phase_crossovers_rad_s: tuple[float, ...] = field(default=())
+    gain_crossovers_rad_s: tuple[float, ...] = field(default=())
+
+    @property
+    def gain_margin_ok(self) -> bool:
+        """MIL-F-9490D §3.1.3.6: at least 6 dB of gain margin both ways."""
+        return (
+            self.closed_loop_stable
+            and self.upper_gain_margin_db >= MIL_F_9490D_GAIN_MARGIN_DB
+            and self.lower_gain_margin_db <= -MIL_F_9490D_GAIN_MARGIN_DB
+        )
+
+    @property
+    def phase_margin_ok(self) -> bool:
+        """MIL-F-9490D §3.1.3.6: at least 45° of phase margin."""
+        return self.closed_loop_stable and self.phase_margin_deg >= MIL_F_9490D_PHASE_MARGIN_DEG
+
+    @property
+    def meets_mil_f_9490d(self) -> bool:
+        """Both MIL-F-9490D §3.1.3.6 margin requirements met."""
+        return self.gain_margin_ok and self.phase_margin_ok
+
+
+def _brackets(values: np.ndarray) -> np.ndarray:
+    """Indices i with a sign change (or exact zero) between values[i] and values[i+1]."""
+    s = np.sign(values)
+    return np.nonzero((s[:-1] * s[1:] < 0) | (s[:-1] == 0))[0]
+
+
+def _roots(fun: Any, w: np.ndarray, values: np.ndarray) -> list[float]:
+    out = []
+    for i in _brackets(values):
+        if values[i] == 0.0:
+            out.append(float(w[i]))
+        else:
+            out.append(float(brentq(fun, w[i], w[i + 1], xtol=1e-14, rtol=1e-13)))
+    return out
+
+
+def _refine_max(fun: Any, w: np.ndarray, values: np.ndarray) -> tuple[float, float]:
+    """Maximum of ``fun`` (scalar ω → float), refined around the grid maximum."""
+    k = int(np.argmax(values))
+    lo, hi = w[max(k - 1, 0)], w[min(k + 1, w.size - 1)]
+    best_w, best_v = float(w[k]), float(values[k])
+    if hi > lo:
+        res = minimize_scalar(
+            lambda x: -fun(math.exp(x)),
+            bounds=(math.log(lo), math.log(hi)),
+            method="bounded",
+            options={"xatol": 1e-10},
+        )
+        if -res.fun > best_v:
+            best_w, best_v = math.exp(res.x), float(-res.fun)
+    return best_w, best_v
+
+
+def margins(parts: LoopParts, omega: Any = None, pade_order: int = 6) -> LoopMargins:
+    """Classical, delay and disk margins and the closed-loop bandwidth.
+
+    Parameters
+    ----------
+    parts : LoopParts
+        The loop.
+    omega : array_like, rad/s, optional
+        Analysis grid (default :data:`DEFAULT_OMEGA`, 1e-3 … 1e3 rad/s, 1000
+        points per decade). Crossovers are bracketed on the grid and refined
+        with :func:`scipy.optimize.brentq` on the exact-delay response.
+    pade_order : int
+        Padé order per delay for the closed-loop stability flag only.
+
+    Returns
+    -------
+    LoopMargins
+
+    Raises
+    ------
+    ValueError
+        If ``|L|`` is still ≥ 1 at the top of the grid (a crossover may lie
+        beyond it): pass a wider ``omega``.
+    """
+    w = _as_omega(DEFAULT_OMEGA if omega is None else omega)
+    w = np.unique(w)
+    if w.size < 3:
+        raise ValueError("omega needs at least 3 distinct frequencies")
+    ev = _Evaluator(parts)
+    loop = ev.loop1
+    big_l = ev.loop(w)
+    if abs(big_l[-1]) >= 1.0:
+        raise ValueError(
+            f"|L| is still >= 1 at the top of the grid ({w[-1]:.3g} rad/s); pass a wider omega"
+        )
+
+    # Phase crossovers: L real and negative (Im L changes sign with Re L < 0).
+    wpc_all = [x for x in _roots(lambda x: loop(x).imag, w, big_l.imag) if loop(x).real < 0.0]
+    gm_all = [-20.0 * math.log10(abs(loop(x))) for x in wpc_all]
+    if gm_all:
+        k = int(np.argmin(np.abs(gm_all)))
+        gain_margin_db, wpc = gm_all[k], wpc_all[k]
+    else:
+        gain_margin_db, wpc = math.inf, math.nan
+    upper = min([g for g in gm_all if g >= 0.0], default=math.inf)
+    lower = max([g for g in gm_all if g < 0.0], default=-math.inf)
+
+    # Gain crossovers: |L| = 1.
+    wgc_all = _roots(lambda x: math.log(abs(loop(x))), w, np.log(np.abs(big_l)))
+    pm_all = []
+    dm_all = []
+    for x in wgc_all:
+        ang = math.degrees(np.angle(-loop(x)))  # = ∠L + 180°, wrapped to (−180, 180]
+        pm_all.append(ang)
+        dm_all.append(math.radians(ang % 360.0) / x)
+    if pm_all:
+        k = int(np.argmin(np.abs(pm_all)))
+        phase_margin_deg, wgc = pm_all[k], wgc_all[k]
+    else:
+        phase_margin_deg, wgc = math.inf, math.nan
+
+    # Stability flag from the Padé closed loop.
+    closed = ct.feedback(rational_loop(parts, pade_order), 1.0, sign=-1)
+    poles = np.linalg.eigvals(closed.A) if closed.A.size else np.array([])
+    stable = bool(np.all(poles.real < 0.0))
+
+    if not stable:
+        delay_margin = 0.0
+    else:
+        delay_margin = min(dm_all, default=math.inf)
+    if parts.camera_delay_s > 0.0:
+        dm_multiple = delay_margin / parts.camera_delay_s
+    else:
+        dm_multiple = math.inf
+
+    # Balanced disk margin from the exact-delay response.
+    def half_s_minus_t(x: float) -> float:
+        lx = loop(x)
+        return abs((1.0 - lx) / (2.0 * (1.0 + lx)))
+
+    wdm, peak = _refine_max(half_s_minus_t, w, np.abs((1.0 - big_l) / (2.0 * (1.0 + big_l))))
+    alpha = 1.0 / peak
+    disk_gm = 20.0 * math.log10((2.0 + alpha) / (2.0 - alpha)) if alpha < 2.0 else math.inf
+    disk_pm = math.degrees(2.0 * math.atan(alpha / 2.0))
+
+    _, ms = _refine_max(lambda x: abs(1.0 / (1.0 + loop(x))), w, np.abs(1.0 / (1.0 + big_l)))
+
+    # Closed-loop bandwidth (exact delays).
+    t_dc = abs(ev.closed1(_OMEGA_DC))
+    t_mag = np.abs(ev.closed(w, big_l))
+    level = t_dc / math.sqrt(2.0)
+    below = np.nonzero(t_mag < level)[0]
+    if t_dc == 0.0 or below.size == 0:
+        bandwidth = math.inf if t_dc > 0.0 else math.nan
+    elif below[0] == 0:
+        bandwidth = float(w[0])
+    else:
+        i = int(below[0])
+        bandwidth = float(brentq(
+            lambda x: abs(ev.closed1(x)) - level, w[i - 1], w[i],
+            xtol=1e-14, rtol=1e-13,
+        ))
+
+    return LoopMargins(
+        gain_margin_db=float(gain_margin_db),
+        phase_crossover_rad_s=float(wpc),
+        upper_gain_margin_db=float(upper),
+        lower_gain_margin_db=float(lower),
+        phase_margin_deg=float(phase_margin_deg),
+        gain_crossover_rad_s=float(wgc),
+        delay_margin_s=float(delay_margin),
+        delay_margin_camera_multiple=float(dm_multiple),
+        disk_alpha=float(alpha),
+        disk_gain_margin_db=float(disk_gm),
+        disk_phase_margin_deg=float(disk_pm),
+        disk_frequency_rad_s=float(wdm),
+        sensitivity_peak_db=float(20.0 * math.log10(ms)),
+        bandwidth_rad_s=float(bandwidth),
+        closed_loop_stable=stable,
+        pade_order=int(pade_order),
+        phase_crossovers_rad_s=tuple(wpc_all),
+        gain_crossovers_rad_s=tuple(wgc_all),
+    )
+
+
+# ---------------------------------------------------------------------------
+# Plot
+# ---------------------------------------------------------------------------
+
+
+def plot_margins(parts: LoopParts, path: str | os.PathLike[str], omega: Any = None) -> Path:
+    """Bode (margins marked), Nichols and Nyquist-near-−1 plots on one PNG.
+
+    Parameters
+    ----------
+    parts : LoopParts
+        The loop.
+    path : str or path-like
+        PNG file to write (atomically: temp file, then rename).
+    omega : array_like, rad/s, optional
+        Grid (default :data:`DEFAULT_OMEGA`).
+
+    Returns
+    -------
+    pathlib.Path
+        The written file.
+    """
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    w = np.unique(_as_omega(DEFAULT_OMEGA if omega is None else omega))
+    m = margins(parts, w)
+    big_l = open_loop_response(parts, w)
+    mag_db = 20.0 * np.log10(np.abs(big_l))
+    phase = np.degrees(np.unwrap(np.angle(big_l)))
+    # Shift the unwrapped phase so it starts in (−360, 0] for readability.
+    phase -= 360.0 * math.ceil(phase[0] / 360.0)
+
+    fig, axes = plt.subplots(2, 2, figsize=(12, 8))
+    ax_mag, ax_nic = axes[0]
+    ax_ph, ax_nyq = axes[1]
+
+    ax_mag.semilogx(w, mag_db, color="C0")
+    ax_mag.axhline(0.0, color="k", lw=0.6)
+    ax_mag.set_ylabel("|L| (dB)")
+    ax_mag.set_title("Loop broken at aileron command (exact delays)")
+    ax_ph.semilogx(w, phase, color="C0")
+    for k in range(-8, 1):
+        ax_ph.axhline(-180.0 + 360.0 * k, color="k", lw=0.4, ls=":")
+    ax_ph.set_ylim(max(phase.min(), -720.0) - 20.0, max(phase.max(), -90.0) + 20.0)
+    ax_ph.set_ylabel("∠L (deg)")
+    ax_ph.set_xlabel("ω (rad/s)")
+    if math.isfinite(m.gain_crossover_rad_s):
+        wc = m.gain_crossover_rad_s
+        ph_c = np.interp(wc, w, phase)
+        ax_mag.axvline(wc, color="C2", ls="--", lw=0.8)
+        ax_ph.axvline(wc, color="C2", ls="--", lw=0.8)
+        ax_ph.annotate(f"PM {m.phase_margin_deg:.1f}° @ {wc:.3g} rad/s\n"
+                       f"delay margin {m.delay_margin_s * 1e3:.0f} ms",
+                       (wc, ph_c), textcoords="offset points", xytext=(8, 8), color="C2")
+    if math.isfinite(m.phase_crossover_rad_s):
+        wp = m.phase_crossover_rad_s
+        ax_mag.axvline(wp, color="C3", ls="--", lw=0.8)
+        ax_mag.annotate(f"GM {m.gain_margin_db:.1f} dB @ {wp:.3g} rad/s",
+                        (wp, -m.gain_margin_db), textcoords="offset points",
+                        xytext=(8, -14), color="C3")
+    for ax in (ax_mag, ax_ph):
+        ax.grid(True, which="both", lw=0.3)
+
+    sel = (mag_db > -40.0) & (mag_db < 40.0)
+    ax_nic.plot(phase[sel], mag_db[sel], color="C0")
+    if np.any(sel):
+        lo_ph, hi_ph = phase[sel].min() - 30.0, phase[sel].max() + 30.0
+        for k in range(-8, 2):
+            if lo_ph <= -180.0 + 360.0 * k <= hi_ph:
+                ax_nic.plot(-180.0 + 360.0 * k, 0.0, "r+", ms=12)
+    ax_nic.set_xlabel("∠L (deg)")
+    ax_nic.set_ylabel("|L| (dB)")
+    ax_nic.set_title("Nichols")
+    ax_nic.grid(True, lw=0.3)
+
+    ax_nyq.plot(big_l.real, big_l.imag, color="C0", label="L(jω)")
+    ax_nyq.plot(big_l.real, -big_l.imag, color="C0", ls=":", lw=0.7)
+    ax_nyq.plot(-1.0, 0.0, "r+", ms=12)
+    th = np.linspace(0.0, 2.0 * math.pi, 361)
+    ax_nyq.plot(np.cos(th), np.sin(th), color="0.6", lw=0.6, label="|L| = 1")
+    # Balanced disk of "bad" loop values: L with |(1−L)/(1+L)|/2 ≥ 1/α.
+    a = m.disk_alpha
+    if a < 2.0:
+        lo, hi = -(2.0 + a) / (2.0 - a), -(2.0 - a) / (2.0 + a)
+        centre, radius = 0.5 * (lo + hi), 0.5 * (hi - lo)
+        ax_nyq.plot(centre + radius * np.cos(th), radius * np.sin(th), color="C3", lw=0.8,
+                    label=f"disk α={a:.2f}: ±{m.disk_gain_margin_db:.1f} dB, "
+                          f"±{m.disk_phase_margin_deg:.1f}°")
+    ax_nyq.set_xlim(-3.0, 1.0)
+    ax_nyq.set_ylim(-2.0, 2.0)
+    ax_nyq.set_aspect("equal")
+    ax_nyq.set_title("Nyquist near −1")
+    ax_nyq.legend(loc="lower right", fontsize=8)
+    ax_nyq.grid(True, lw=0.3)
+    fig.suptitle(
+        f"GM {m.gain_margin_db:.1f} dB, PM {m.phase_margin_deg:.1f}°, "
+        f"bandwidth {m.bandwidth_rad_s:.3g} rad/s, "
+        f"{'stable' if m.closed_loop_stable else 'UNSTABLE'} (Padé {m.pade_order}), "
+        f"MIL-F-9490D {'pass' if m.meets_mil_f_9490d else 'fail'}"
+    )
+    fig.tight_layout()
+
+    out = Path(path)
+    out.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(suffix=".png", dir=out.parent)
+    os.close(fd)
+    try:
+        fig.savefig(tmp, dpi=110, format="png")
+        os.replace(tmp, out)
+    finally:
+        plt.close(fig)
+        if os.path.exists(tmp):
+            os.remove(tmp)
+    return out
