@@ -1,13 +1,15 @@
-"""Aileron servo: first-order lag with position and rate limits."""
+"""Aileron servo: first-order lag with position and rate limits.
+
+The stepping core (:mod:`sim.core`) integrates the lag exactly together with
+the plant and clips the servo where a limit binds.
+"""
 
 from __future__ import annotations
 
 import math
 from dataclasses import dataclass
 
-import numpy as np
-
-__all__ = ["ActuatorSpec", "actuator_step"]
+__all__ = ["ActuatorSpec"]
 
 
 @dataclass(frozen=True)
@@ -35,17 +37,3 @@ class ActuatorSpec:
             return 1.0
         return -math.expm1(-dt / self.time_constant_s)
 
-
-def actuator_step(
-    position: np.ndarray, command: np.ndarray, spec: ActuatorSpec, alpha: float, dt: float
-) -> np.ndarray:
-    """Servo position after one base step.
-
-    The unconstrained lag response ``alpha * (command - position)`` is limited
-    to ``rate_limit * dt`` and the result clipped to the position limit.
-    """
-    change = alpha * (command - position)
-    max_change = spec.rate_limit_rad_s * dt
-    if math.isfinite(max_change):
-        change = np.clip(change, -max_change, max_change)
-    return np.clip(position + change, -spec.limit_rad, spec.limit_rad)

@@ -11,9 +11,14 @@ Timing on the base-step grid ``t_k = k·dt``, within step ``k``:
    samples ``p_k`` if due;
 2. at a controller tick the controller sees the newest delivered reading and
    returns an aileron command, held until the next tick;
-3. the servo moves from ``δ_k`` to ``δ_{k+1}``; the plant advances by the exact
-   zero-order-hold step with the mean servo position ``(δ_k + δ_{k+1})/2``
-   over the step (second-order accurate in ``dt``) plus the disturbance inputs.
+3. plant and servo advance together by the exact zero-order-hold step of
+   the combined linear system (servo lag driven by the held command), plus
+   the disturbance inputs. Where the servo's rate or position limit binds
+   during a step, those runs' servo is clipped and their plant is driven by
+   the mean servo position over the step (exact for a straight-line servo
+   motion). Whether a limit can bind is decided once per tick (the lag's
+   step-to-step change only shrinks while the command is held), so runs far
+   from the limits cost one matrix product per step.
 
 A run whose ``|φ|`` exceeds ``divergence_rad`` (or whose controller returns a
 non-finite command) is declared diverged at that time and frozen there.
@@ -26,6 +31,7 @@ from collections.abc import Sequence
 from dataclasses import dataclass, field
 
 import numpy as np
+import scipy.linalg
 
 from controllers.base import Controller, Observation
 from sensors.camera import CameraConfig, CameraReader
@@ -95,20 +101,50 @@ class Stepper:
     def __init__(self, setup: LoopSetup) -> None:
         self.setup = setup
         dp = discretize(setup.plant, setup.dt)
-        # state kept transposed, (n_x + 1, batch): the extra row carries the
-        # servo position held over the step, so one matmul advances the plant
-        self._m = np.ascontiguousarray(np.hstack([dp.ad, dp.bd_control[:, :1]]))
+        act = setup.actuator
+        nx = setup.plant.n_states
+        alpha = act.gain_per_step(setup.dt)
+        # Rows of the transposed state (n_x + 2, batch): plant states, servo
+        # position, held aileron command. One matmul with m advances plant
+        # and servo exactly; the command row is carried unchanged.
+        lag = np.zeros((nx + 2, nx + 2))
+        lag[:nx, :nx] = setup.plant.a
+        if act.time_constant_s > 0:
+            lag[:nx, nx] = setup.plant.b_control[:, 0]
+            lag[nx, nx] = -1.0 / act.time_constant_s
+            lag[nx, nx + 1] = 1.0 / act.time_constant_s
+            m = scipy.linalg.expm(lag * setup.dt)[: nx + 1]
+        else:  # instant servo: the plant sees the held command itself
+            m = np.zeros((nx + 1, nx + 2))
+            m[:nx, :nx] = dp.ad
+            m[:nx, nx + 1] = dp.bd_control[:, 0]
+            m[nx, nx + 1] = 1.0
+        self._m = np.ascontiguousarray(m)
+        self._ad = np.ascontiguousarray(dp.ad)
+        self._b_ail = dp.bd_control[:, 0].copy()
         self._bd = np.ascontiguousarray(dp.bd_disturbance)
-        self._nx = setup.plant.n_states
-        self._alpha = setup.actuator.gain_per_step(setup.dt)
+        self._nx = nx
+        self._alpha = alpha
         self._phi = setup.plant.phi_index
         self._p = setup.plant.p_index
 
     # -------------------------------------------------------------- start
     def reset(
-        self, seed: int, run_indices: Sequence[int], *, record_states: bool = False
+        self,
+        seed: int,
+        run_indices: Sequence[int],
+        *,
+        record_states: bool = False,
+        input_gain: np.ndarray | float | None = None,
+        input_delay_s: np.ndarray | float | None = None,
     ) -> Observation:
-        """Start a batch; returns the observation at the first tick."""
+        """Start a batch; returns the observation at the first tick.
+
+        ``input_gain`` and ``input_delay_s`` (per run, or one value for all)
+        perturb the loop where it is broken for margins: at the aileron
+        command, between controller and servo. The delay acts on the base
+        grid (resolution ``dt``).
+        """
         s = self.setup
         runs = np.asarray(run_indices, dtype=np.int64)
         batch = runs.size
@@ -125,12 +161,19 @@ class Stepper:
         self._dist_eff = None
 
         nx = self._nx
-        self._X = np.zeros((nx + 1, batch))
+        self._X = np.zeros((nx + 2, batch))
         self._X[:nx] = np.asarray(s.x0, float)[:, None]
         self._Y = np.zeros_like(self._X)
-        self.delta = np.zeros(batch)
         self.k = 0
         self.tick = 0
+        self._gain = None if input_gain is None else np.broadcast_to(np.asarray(input_gain, float), (batch,))
+        self._delay_steps = (
+            None if input_delay_s is None
+            else np.rint(np.broadcast_to(np.asarray(input_delay_s, float), (batch,)) / s.dt).astype(np.int64)
+        )
+        if self._delay_steps is not None and np.any(self._delay_steps < 0):
+            raise ValueError("input_delay_s must be >= 0")
+        self._rows = np.arange(batch)
         self.alive = np.ones(batch, dtype=bool)
         self.diverged_at = np.full(batch, np.inf)
 
@@ -186,10 +229,9 @@ class Stepper:
         self.tick += 1
 
         m, nx, phi, p = self._m, self._nx, self._phi, self._p
-        alpha, dt = self._alpha, s.dt
+        dt = s.dt
         lim = s.actuator.limit_rad
         max_change = s.actuator.rate_limit_rad_s * dt
-        rate_limited = math.isfinite(max_change)
         stop = min(self.k + s.ctrl_every, s.n_steps)
         frozen = not self.alive.all()
         captures, camera = self.camera.captures, self.camera
@@ -197,32 +239,40 @@ class Stepper:
         rec_bank, rec_rate, rec_ail, rec_states = (
             self.rec_bank, self.rec_rate, self.rec_ail, self.rec_states
         )
-        X, Y, delta = self._X, self._Y, self.delta
+        X, Y = self._X, self._Y
+        X[nx + 1] = u
+        Y[nx + 1] = u
+        # While the command is held the lag's per-step change only shrinks, so
+        # the limits can bind in this tick only if they bind at its start.
+        may_bind = bool(
+            np.max(np.abs(u), initial=0.0) > lim
+            or self._alpha * np.max(np.abs(u - X[nx]), initial=0.0) > max_change
+        )
+        perturbed = self._gain is not None or self._delay_steps is not None
         for k in range(self.k, stop):
-            # servo: exact first-order lag, then rate and position limits
-            change = alpha * (u - delta)
-            if rate_limited:
-                change = np.minimum(np.maximum(change, -max_change), max_change)
-            new_delta = np.minimum(np.maximum(delta + change, -lim), lim)
-            X[nx] = 0.5 * (delta + new_delta)
-            np.matmul(m, X, out=Y[:nx])
+            if perturbed:
+                X[nx + 1] = self._perturbed_command(k, u)
+                may_bind = True
+            np.matmul(m, X, out=Y[: nx + 1])
+            if may_bind:
+                self._limit_servo(X, Y, lim, max_change)
             if self.dist:
                 Y[:nx] += self._disturbance_row(k)
             if frozen:
-                Y[:nx] = np.where(self.alive, Y[:nx], X[:nx])
-            X, Y, delta = Y, X, new_delta
+                Y[: nx + 1] = np.where(self.alive, Y[: nx + 1], X[: nx + 1])
+            X, Y = Y, X
             j = k + 1
             bank = X[phi]
             rec_bank[j] = bank
             rec_rate[j] = X[p]
-            rec_ail[j] = delta
+            rec_ail[j] = X[nx]
             if rec_states is not None:
                 rec_states[j] = X[:nx].T
             if j in captures:
                 camera.capture(j, bank)
             if gyro is not None:
                 gyro.sample(j, X[p])
-        self._X, self._Y, self.delta, self.k = X, Y, delta, stop
+        self._X, self._Y, self.k = X, Y, stop
         runaway = self.alive & ~(np.abs(X[phi]) < s.divergence_rad)
         if runaway.any():
             self._diverge(runaway)
@@ -231,6 +281,34 @@ class Stepper:
         return self.observe()
 
     # -------------------------------------------------------------- helpers
+    def _perturbed_command(self, k: int, u: np.ndarray) -> np.ndarray:
+        """Aileron command reaching the servo at step ``k`` with the margin perturbation."""
+        cmd = u
+        if self._delay_steps is not None:
+            src = k - self._delay_steps  # base step whose command arrives now
+            tick = np.floor_divide(src, self.setup.ctrl_every)
+            ok = src >= 0
+            cmd = np.where(ok, self.rec_cmd[np.clip(tick, 0, None), self._rows], 0.0)
+        if self._gain is not None:
+            cmd = cmd * self._gain
+        return cmd
+
+    def _limit_servo(self, X: np.ndarray, Y: np.ndarray, lim: float, max_change: float) -> None:
+        """Clip the servo where a limit binds; redo those runs' plant step."""
+        nx = self._nx
+        before, free = X[nx], Y[nx]
+        clipped = np.clip(before + np.clip(free - before, -max_change, max_change), -lim, lim)
+        bind = clipped != free
+        if bind.any():
+            mean = 0.5 * (before[bind] + clipped[bind])  # straight-line servo motion
+            Y[:nx, bind] = self._ad @ X[:nx, bind] + self._b_ail[:, None] * mean
+            Y[nx, bind] = clipped[bind]
+
+    @property
+    def aileron(self) -> np.ndarray:
+        """Current servo position, rad, ``(batch,)``."""
+        return self._X[self._nx].copy()
+
     @property
     def x(self) -> np.ndarray:
         """Current plant state, ``(batch, n_x)`` (a copy)."""
@@ -240,7 +318,7 @@ class Stepper:
         X = self._X
         self.rec_bank[k] = X[self._phi]
         self.rec_rate[k] = X[self._p]
-        self.rec_ail[k] = self.delta
+        self.rec_ail[k] = X[self._nx]
         if self.rec_states is not None:
             self.rec_states[k] = X[: self._nx].T
 

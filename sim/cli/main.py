@@ -36,7 +36,7 @@ def build_parser() -> argparse.ArgumentParser:
     parser.add_argument("--version", action="version", version=f"rollrig {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
     sub.required = True
-    for name, mod in COMMANDS.items():
+    for mod in COMMANDS.values():
         importlib.import_module(f"sim.cli.{mod}").add_parser(sub)
     return parser
 
