@@ -2,20 +2,32 @@
 
 The model has two halves.
 
-*Timing* (:func:`plan_frames`) does not depend on the aircraft, so it is
-computed once per batch: when each frame is captured and when its reading is
-delivered to the autopilot, on the base-step grid. Frames are delivered in
-order; a frame captured at step ``c`` with latency ``L`` arrives at step
-``c + round(L / dt)``.
+*Timing* (:mod:`sensors.timing`) does not depend on the aircraft, so it is
+computed once per batch: when each frame is captured (frame rate, jitter) and
+when its reading is delivered (fixed plus random latency, in order).
 
-*Reading errors* (:func:`read_frames`) act on the bank angle seen at capture:
-a chain of small pure stages over batch arrays (scale and bias, noise,
-quantisation, measuring range, lost frames). Random draws for every frame are
-made up front, one stream per stage, so a stage added later never shifts the
-draws of another.
+*Reading errors* (:mod:`sensors.stages`) act at capture on the captured rows.
+Every random draw is made up front, one stream per stage
+(``rng_for("camera.<stage>")``), so adding a stage never shifts another's
+draws; time-correlated stages (wandering error, bursty losses) generate their
+whole per-frame sequence at reset. The bank-independent errors (bias, white
+noise, wander, outliers) are summed into one per-frame offset at reset, so a
+capture costs the same few array operations however many stages are on.
 
-At a controller tick the autopilot sees the newest delivered reading; if it is
-invalid, the last valid one is kept and its age grows (see
+Stages at capture, in order:
+
+1. exposure: the bank averaged over the exposure that ends at capture
+   (trapezoid over base steps; a fast roll smears; lag of half the exposure);
+2. scale and bias, then white noise, wandering error and wild readings;
+3. a classification-style reader (optional): class scores, then ``best``
+   or ``weighted`` decoding; the confidence output is the top class score;
+4. rounding quantiser;
+5. measuring range: beyond it the reading is flagged invalid
+   (``beyond_range="invalid"``, default) or clipped (``"saturate"``);
+6. lost frames: independent and/or bursty (two-state chain) losses.
+
+At a controller tick the autopilot sees the newest delivered reading; if it
+is invalid, the last valid one is kept and its age grows (see
 :class:`CameraReader`).
 """
 
@@ -27,11 +39,18 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from . import stages
+from .stages import quantize
+from .timing import FramePlan, n_frames_for, plan_frames
+
 __all__ = [
     "CameraConfig",
+    "ClassifierConfig",
+    "BurstConfig",
     "FramePlan",
     "plan_frames",
     "frame_draws",
+    "frame_offsets",
     "read_frames",
     "quantize",
     "CameraReader",
@@ -41,8 +60,52 @@ RngFor = Callable[[str], Sequence[np.random.Generator]]
 
 
 @dataclass(frozen=True)
+class ClassifierConfig:
+    """A classification-style reader (scores angle classes, decodes a reading).
+
+    Parameters
+    ----------
+    class_width_rad : rad
+        Spacing of class centres (``k·width`` over the measuring range).
+    sharpness : 1
+        Score sharpness: scores are a softmax of ``-sharpness·(offset/width)²``.
+    decode : {"best", "weighted"}
+        ``best``: top class's centre (steps of the width); ``weighted``:
+        score-weighted mean of centres (smooth, biased towards centres,
+        compressed near the ends of the range).
+    """
+
+    class_width_rad: float = math.radians(2.0)
+    sharpness: float = 4.0
+    decode: str = "best"
+
+    def __post_init__(self) -> None:
+        if self.decode not in ("best", "weighted"):
+            raise ValueError(f"decode = {self.decode!r}; allowed: 'best', 'weighted'")
+
+
+@dataclass(frozen=True)
+class BurstConfig:
+    """Bursty frame losses from a two-state good/bad chain (Gilbert–Elliott).
+
+    Parameters
+    ----------
+    loss_rate : 1, float or (batch,)
+        Stationary fraction of frames lost, ``p/(p+r)``.
+    mean_burst_frames : frames
+        Mean length of a run of lost frames, ``1/r`` (≥ 1).
+    """
+
+    loss_rate: float | np.ndarray = 0.1
+    mean_burst_frames: float = 3.0
+
+
+@dataclass(frozen=True)
 class CameraConfig:
     """Camera-reader parameters (SI units).
+
+    ``latency_s`` and ``dropout_prob`` (and ``bursts.loss_rate``) accept a
+    float or a ``(batch,)`` array (one value per run) when built in code.
 
     Parameters
     ----------
@@ -59,170 +122,216 @@ class CameraConfig:
     quantization_rad : rad
         Rounding step of the reading (0 = none).
     range_rad : rad
-        Largest |bank| the reader can read; beyond it a reading is invalid.
+        Largest |bank| the reader can read.
     dropout_prob : 1
         Probability that a frame is lost, independently of other frames.
+    jitter_s : s
+        Standard deviation of the capture-time jitter (white, per frame).
+    exposure_s : s
+        Exposure time; the reading is the bank averaged over it.
+    latency_jitter_s : s
+        Mean of the random extra latency (exponential) of each frame.
+    wander_rad : rad
+        Stationary std of the slowly wandering (Gauss–Markov) error.
+    wander_time_s : s
+        Correlation time of the wandering error.
+    outlier_prob : 1
+        Probability that a frame gives a wild reading.
+    outlier_rad : rad
+        Mean size of a wild reading's error (random sign).
+    beyond_range : {"invalid", "saturate"}
+        What a reading beyond the range does.
+    classifier : ClassifierConfig or None
+        Classification-style reader, when set.
+    bursts : BurstConfig or None
+        Bursty losses, when set (in addition to ``dropout_prob``).
     """
 
     frame_rate_hz: float = 30.0
-    latency_s: float = 0.0
+    latency_s: float | np.ndarray = 0.0
     noise_rad: float = 0.0
     bias_rad: float = 0.0
     scale: float = 1.0
     quantization_rad: float = 0.0
     range_rad: float = math.radians(90.0)
-    dropout_prob: float = 0.0
+    dropout_prob: float | np.ndarray = 0.0
+    jitter_s: float = 0.0
+    exposure_s: float = 0.0
+    latency_jitter_s: float = 0.0
+    wander_rad: float = 0.0
+    wander_time_s: float = 2.0
+    outlier_prob: float = 0.0
+    outlier_rad: float = 0.0
+    beyond_range: str = "invalid"
+    classifier: ClassifierConfig | None = None
+    bursts: BurstConfig | None = None
+
+    def __post_init__(self) -> None:
+        if self.beyond_range not in ("invalid", "saturate"):
+            raise ValueError(f"beyond_range = {self.beyond_range!r}; allowed: 'invalid', 'saturate'")
+        if self.frame_rate_hz <= 0:
+            raise ValueError(f"frame_rate_hz = {self.frame_rate_hz}; allowed: > 0")
+        for name in ("latency_s", "dropout_prob"):
+            v = np.asarray(getattr(self, name), dtype=float)
+            if v.ndim > 1 or np.any(v < 0) or not np.all(np.isfinite(v)):
+                raise ValueError(f"{name}: allowed: a float ≥ 0 or a (batch,) array of them")
+        if np.any(np.asarray(self.dropout_prob) >= 1):
+            raise ValueError("dropout_prob: allowed: 0 ≤ dropout_prob < 1")
 
 
-# --------------------------------------------------------------------- timing
-@dataclass(frozen=True)
-class FramePlan:
-    """When frames are captured and delivered, for a batch of runs.
-
-    Attributes
-    ----------
-    capture_step : (batch, n_frames) int
-        Base step at which each frame is captured.
-    deliver_step : (batch, n_frames) int
-        Base step at which each reading reaches the autopilot (non-decreasing
-        along frames: delivery is in order).
-    """
-
-    capture_step: np.ndarray
-    deliver_step: np.ndarray
-
-    @property
-    def n_frames(self) -> int:
-        return int(self.capture_step.shape[1])
-
-    def captures_by_step(self) -> dict[int, tuple[np.ndarray | slice, np.ndarray | int]]:
-        """Map base step -> (rows, frame indices) captured at that step."""
-        cap = self.capture_step
-        batch, n = cap.shape
-        out: dict[int, tuple[np.ndarray | slice, np.ndarray | int]] = {}
-        if np.all(cap == cap[:1]):  # every run captures on the same steps
-            for f, k in enumerate(cap[0]):
-                out[int(k)] = (slice(None), f)
-            return out
-        steps = cap.ravel()
-        order = np.argsort(steps, kind="stable")
-        rows = np.repeat(np.arange(batch), n)[order]
-        frames = np.tile(np.arange(n), batch)[order]
-        uniq, start = np.unique(steps[order], return_index=True)
-        bounds = np.append(start, steps.size)
-        for j, k in enumerate(uniq):
-            sl = slice(bounds[j], bounds[j + 1])
-            out[int(k)] = (rows[sl], frames[sl])
-        return out
-
-    def latest_delivered(self, steps: np.ndarray) -> np.ndarray:
-        """Index of the newest frame delivered at or before each step.
-
-        Returns ``(len(steps), batch)`` ints, ``-1`` where nothing has arrived.
-        """
-        d = self.deliver_step
-        batch, n = d.shape
-        steps = np.asarray(steps)
-        if np.all(d == d[:1]):  # same timing in every run: one search serves all
-            one = np.searchsorted(d[0], steps, side="right") - 1
-            return np.repeat(one[:, None], batch, axis=1)
-        span = int(max(d.max(initial=0), steps.max(initial=0))) + 2
-        offset = (np.arange(batch) * span)[:, None]
-        flat = (d + offset).ravel()
-        query = (np.asarray(steps)[None, :] + offset).ravel()
-        pos = np.searchsorted(flat, query, side="right")
-        idx = pos.reshape(batch, -1) - 1 - np.arange(batch)[:, None] * n
-        idx[idx < 0] = -1
-        return idx.T.copy()
+def _per_run(value, batch: int, name: str) -> np.ndarray | float:
+    a = np.asarray(value, dtype=float)
+    if a.ndim == 0:
+        return float(a)
+    if a.shape != (batch,):
+        raise ValueError(f"{name} has shape {a.shape}; allowed: a float or shape ({batch},)")
+    return a
 
 
-def plan_frames(cfg: CameraConfig, dt: float, n_steps: int, batch: int) -> FramePlan:
-    """Capture and delivery steps for frames in ``[0, n_steps * dt]``.
-
-    Frame ``f`` is captured at ``round(f / frame_rate / dt)`` (timing snapped to
-    the base grid, error at most ``dt/2``) and delivered ``round(latency/dt)``
-    steps later.
-    """
-    period = 1.0 / cfg.frame_rate_hz
-    n_frames = int(math.floor(n_steps * dt / period + 1e-9)) + 1
-    cap = np.rint(np.arange(n_frames) * period / dt).astype(np.int64)
-    cap = cap[cap <= n_steps]
-    lag = int(round(cfg.latency_s / dt))
-    cap2 = np.broadcast_to(cap, (batch, cap.size)).copy()
-    return FramePlan(capture_step=cap2, deliver_step=cap2 + lag)
+def _any_positive(x) -> bool:
+    return bool(np.any(np.asarray(x) > 0))
 
 
-# ----------------------------------------------------------- reading errors
+# ----------------------------------------------------------- random draws
 def frame_draws(cfg: CameraConfig, n_frames: int, rng_for: RngFor) -> dict[str, np.ndarray]:
     """Random draws for every frame of every run, one stream per stage.
 
-    Returns arrays of shape ``(batch, n_frames)``.
+    Returns arrays of shape ``(batch, n_frames)`` (``outliers``:
+    ``(batch, 2, n_frames)``); only stages that are switched on draw.
     """
+    def stack(stream: str, draw) -> np.ndarray:
+        return np.stack([draw(g) for g in rng_for(stream)])
+
+    n = n_frames
     draws: dict[str, np.ndarray] = {}
     if cfg.noise_rad > 0:
-        draws["noise"] = np.stack([g.standard_normal(n_frames) for g in rng_for("camera.noise")])
-    if cfg.dropout_prob > 0:
-        draws["lost"] = np.stack(
-            [g.random(n_frames) < cfg.dropout_prob for g in rng_for("camera.dropout")]
-        )
+        draws["noise"] = stack("camera.noise", lambda g: g.standard_normal(n))
+    if _any_positive(cfg.dropout_prob):
+        draws["dropout"] = stack("camera.dropout", lambda g: g.random(n))
+    if cfg.jitter_s > 0:
+        draws["jitter"] = stack("camera.jitter", lambda g: g.standard_normal(n))
+    if cfg.latency_jitter_s > 0:
+        draws["latency"] = stack("camera.latency", lambda g: g.standard_exponential(n))
+    if cfg.wander_rad > 0:
+        draws["wander"] = stack("camera.wander", lambda g: g.standard_normal(n))
+    if cfg.outlier_prob > 0 and cfg.outlier_rad > 0:
+        draws["outliers"] = stack("camera.outliers", lambda g: g.random((2, n)))
+    if cfg.bursts is not None and _any_positive(cfg.bursts.loss_rate):
+        draws["bursts"] = stack("camera.bursts", lambda g: g.random(n))
     return draws
 
 
-def quantize(x: np.ndarray, step: float) -> np.ndarray:
-    """Round to the nearest multiple of ``step`` (no-op for ``step <= 0``)."""
-    if step <= 0:
-        return x
-    return np.round(x / step) * step
+def frame_offsets(cfg: CameraConfig, draws: dict[str, np.ndarray], batch: int, n: int) -> np.ndarray | float:
+    """Bank-independent error of every frame: bias + noise + wander + wild readings.
+
+    Returns ``(batch, n)`` rad, or the bias alone (a float) when no random
+    stage is on.
+    """
+    parts = []
+    if "noise" in draws:
+        parts.append(stages.white_noise(draws["noise"], cfg.noise_rad))
+    if "wander" in draws:
+        parts.append(stages.gauss_markov(draws["wander"], cfg.wander_rad, cfg.wander_time_s,
+                                         1.0 / cfg.frame_rate_hz))
+    if "outliers" in draws:
+        o = draws["outliers"]
+        parts.append(stages.outlier_offsets(o[:, 0], o[:, 1], cfg.outlier_prob, cfg.outlier_rad))
+    if not parts:
+        return float(cfg.bias_rad)
+    total = parts[0] + cfg.bias_rad
+    for p in parts[1:]:
+        total += p
+    return total
+
+
+def frame_losses(cfg: CameraConfig, draws: dict[str, np.ndarray], batch: int) -> np.ndarray | None:
+    """Lost-frame mask ``(batch, n)`` from independent and bursty losses, or None."""
+    lost = None
+    if "dropout" in draws:
+        lost = stages.independent_losses(draws["dropout"], _per_run(cfg.dropout_prob, batch, "dropout_prob"))
+    if "bursts" in draws:
+        b = stages.burst_losses(draws["bursts"], _per_run(cfg.bursts.loss_rate, batch, "bursts.loss_rate"),
+                                cfg.bursts.mean_burst_frames)
+        lost = b if lost is None else lost | b
+    return lost
 
 
 def read_frames(
-    bank: np.ndarray, cfg: CameraConfig, draws: dict[str, np.ndarray]
-) -> tuple[np.ndarray, np.ndarray]:
-    """Readings and validity for frames whose true bank is ``bank``.
+    bank: np.ndarray, cfg: CameraConfig, offset, centres: np.ndarray | None = None
+) -> tuple[np.ndarray, np.ndarray, np.ndarray | None]:
+    """Readings, in-range flags and confidence for frames whose (exposed) bank is ``bank``.
 
-    ``draws`` holds this frame's random draws (same shape as ``bank``).
-    Stages, in order: scale and bias, white noise, quantisation, measuring
-    range (invalid beyond it), lost frames.
+    ``offset`` is the frames' bank-independent error (see :func:`frame_offsets`).
+    Losses are applied by the caller. Returns ``(reading, in_range,
+    confidence)``; confidence is ``None`` without a classifier.
     """
-    value = cfg.scale * bank + cfg.bias_rad
-    if "noise" in draws:
-        value = value + cfg.noise_rad * draws["noise"]
+    value = bank * cfg.scale + offset if cfg.scale != 1.0 else bank + offset
+    conf = None
+    c = cfg.classifier
+    if c is not None:
+        if centres is None:
+            centres = stages.class_centres(c.class_width_rad, cfg.range_rad)
+        value, conf = stages.classify(value, centres, c.class_width_rad, c.sharpness, c.decode)
     value = quantize(value, cfg.quantization_rad)
-    valid = np.abs(value) <= cfg.range_rad
-    if "lost" in draws:
-        valid &= ~draws["lost"]
-    return value, valid
+    value, ok = stages.limit_range(value, cfg.range_rad, cfg.beyond_range)
+    return value, ok, conf
 
 
 # ------------------------------------------------------------- runtime shell
 class CameraReader:
     """The stateful shell the stepping core drives.
 
-    Call :meth:`reset` once per batch, :meth:`capture` at every base step that
-    has captures, and :meth:`read` at every controller tick.
+    Call :meth:`reset` once per batch, :meth:`capture` at every base step in
+    :attr:`captures`, and :meth:`read` at every controller tick. When the
+    exposure is not zero the core must set :attr:`history` to its
+    ``(n_steps + 1, batch)`` record of true bank (written before capture).
     """
 
     def __init__(self, cfg: CameraConfig, dt: float) -> None:
         self.cfg = cfg
         self.dt = float(dt)
+        self.history: np.ndarray | None = None
 
     def reset(
         self, n_steps: int, tick_steps: np.ndarray, batch: int, rng_for: RngFor
     ) -> None:
-        self.plan = plan_frames(self.cfg, self.dt, n_steps, batch)
-        n = self.plan.n_frames
-        self.draws = frame_draws(self.cfg, n, rng_for)
+        cfg = self.cfg
+        n = n_frames_for(cfg.frame_rate_hz, self.dt, n_steps)
+        draws = frame_draws(cfg, n, rng_for)
+        latency = _per_run(cfg.latency_s, batch, "latency_s")
+        self.plan = plan_frames(
+            cfg.frame_rate_hz, self.dt, n_steps, batch, latency_s=latency,
+            jitter_eps=draws.get("jitter"), jitter_s=cfg.jitter_s,
+            latency_extra_s=None if "latency" not in draws else cfg.latency_jitter_s * draws["latency"],
+        )
         self.captures = self.plan.captures_by_step()
         self._latest = self.plan.latest_delivered(np.asarray(tick_steps))
-        # one spare column (index -1) stands for "no frame yet": never valid
-        self.values = np.zeros((batch, n + 1))
-        self.valid = np.zeros((batch, n + 1), dtype=bool)
-        self.capture_time = np.full((batch, n + 1), -np.inf)
-        self.capture_time[:, :n] = self.plan.capture_step * self.dt
+        # frame-major arrays; one spare row (index -1) stands for "no frame yet"
+        off = frame_offsets(cfg, draws, batch, n)
+        self._offset = off if np.isscalar(off) else np.ascontiguousarray(np.asarray(off).T)
+        lost = frame_losses(cfg, draws, batch)
+        self._kept = None if lost is None else np.ascontiguousarray(~lost.T)
+        self._centres = (None if cfg.classifier is None
+                         else stages.class_centres(cfg.classifier.class_width_rad, cfg.range_rad))
+        self._weights = stages.exposure_weights(cfg.exposure_s, self.dt)
+        self.values = np.zeros((n + 1, batch))
+        self.valid = np.zeros((n + 1, batch), dtype=bool)
+        self.confidence = np.zeros((n + 1, batch)) if cfg.classifier is not None else None
+        self.capture_time = np.full((n + 1, batch), -np.inf)
+        self.capture_time[:n] = self.plan.capture_step.T * self.dt
         self._last_value = np.zeros(batch)
         self._last_time = np.full(batch, -np.inf)
         self._rows = np.arange(batch)
         self._tick = 0
+
+    def _exposed(self, k: int, bank: np.ndarray, rows) -> np.ndarray:
+        w = self._weights
+        if w.size == 1:
+            return bank[rows]
+        if self.history is None:
+            raise RuntimeError("exposure_s > 0 needs CameraReader.history (the core's bank record)")
+        idx = np.clip(np.arange(k - w.size + 1, k + 1), 0, None)
+        return w @ self.history[idx][:, rows]
 
     def capture(self, k: int, bank: np.ndarray) -> None:
         """Capture the frames due at base step ``k`` from true bank (batch,)."""
@@ -230,16 +339,20 @@ class CameraReader:
         if hit is None:
             return
         rows, frames = hit
-        draws = {name: d[rows, frames] for name, d in self.draws.items()}
-        value, valid = read_frames(bank[rows], self.cfg, draws)
-        self.values[rows, frames] = value
-        self.valid[rows, frames] = valid
+        off = self._offset if np.isscalar(self._offset) else self._offset[frames, rows]
+        value, ok, conf = read_frames(self._exposed(k, bank, rows), self.cfg, off, self._centres)
+        if self._kept is not None:
+            ok &= self._kept[frames, rows]
+        self.values[frames, rows] = value
+        self.valid[frames, rows] = ok
+        if conf is not None:
+            self.confidence[frames, rows] = conf
 
     def read(self, t: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """(bank, valid, age) at the next controller tick, time ``t``."""
         idx = self._latest[self._tick]
         self._tick += 1
-        valid = self.valid[self._rows, idx]
-        self._last_value = np.where(valid, self.values[self._rows, idx], self._last_value)
-        self._last_time = np.where(valid, self.capture_time[self._rows, idx], self._last_time)
+        valid = self.valid[idx, self._rows]
+        self._last_value = np.where(valid, self.values[idx, self._rows], self._last_value)
+        self._last_time = np.where(valid, self.capture_time[idx, self._rows], self._last_time)
         return self._last_value, valid, t - self._last_time

@@ -1,4 +1,11 @@
-"""Optional rate gyro: roll rate with bias and white noise, at its own rate."""
+"""Optional rate gyro: roll rate with bias, bias drift and white noise, at its own rate.
+
+The bias drift is a first-order Gauss–Markov process (stationary std
+``bias_drift_rad_s``, correlation time ``bias_drift_time_s``), the usual
+model of a gyro's bias instability; its whole per-sample sequence is drawn at
+reset (:func:`sensors.stages.gauss_markov`), one random stream per error
+(``gyro.noise``, ``gyro.drift``).
+"""
 
 from __future__ import annotations
 
@@ -8,7 +15,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["GyroConfig", "RateGyro"]
+from .stages import gauss_markov
+
+__all__ = ["GyroConfig", "RateGyro", "gyro_errors"]
 
 
 @dataclass(frozen=True)
@@ -23,11 +32,31 @@ class GyroConfig:
         Standard deviation of white noise per sample.
     bias_rad_s : rad/s
         Constant bias.
+    bias_drift_rad_s : rad/s
+        Stationary standard deviation of the drifting part of the bias.
+    bias_drift_time_s : s
+        Correlation time of the bias drift.
     """
 
     rate_hz: float = 100.0
     noise_rad_s: float = 0.0
     bias_rad_s: float = 0.0
+    bias_drift_rad_s: float = 0.0
+    bias_drift_time_s: float = 100.0
+
+
+def gyro_errors(cfg: GyroConfig, n: int, rng_for: Callable[[str], Sequence[np.random.Generator]]):
+    """Per-sample error ``(batch, n)`` rad/s (bias + drift + noise), or the bias alone."""
+    total = None
+    if cfg.noise_rad_s > 0:
+        total = cfg.noise_rad_s * np.stack([g.standard_normal(n) for g in rng_for("gyro.noise")])
+    if cfg.bias_drift_rad_s > 0:
+        eps = np.stack([g.standard_normal(n) for g in rng_for("gyro.drift")])
+        drift = gauss_markov(eps, cfg.bias_drift_rad_s, cfg.bias_drift_time_s, 1.0 / cfg.rate_hz)
+        total = drift if total is None else total + drift
+    if total is None:
+        return float(cfg.bias_rad_s)
+    return total + cfg.bias_rad_s
 
 
 class RateGyro:
@@ -44,10 +73,8 @@ class RateGyro:
         n = int(math.floor(n_steps * self.dt / period + 1e-9)) + 1
         steps = np.rint(np.arange(n) * period / self.dt).astype(np.int64)
         self.sample_steps = {int(k): j for j, k in enumerate(steps) if k <= n_steps}
-        if self.cfg.noise_rad_s > 0:
-            self.noise = np.stack([g.standard_normal(n) for g in rng_for("gyro.noise")])
-        else:
-            self.noise = None
+        err = gyro_errors(self.cfg, n, rng_for)
+        self._err = err if np.isscalar(err) else np.ascontiguousarray(np.asarray(err).T)
         self.value = np.zeros(batch)
 
     def sample(self, k: int, rate: np.ndarray) -> None:
@@ -55,10 +82,7 @@ class RateGyro:
         j = self.sample_steps.get(k)
         if j is None:
             return
-        v = rate + self.cfg.bias_rad_s
-        if self.noise is not None:
-            v = v + self.cfg.noise_rad_s * self.noise[:, j]
-        self.value = v
+        self.value = rate + (self._err if np.isscalar(self._err) else self._err[j])
 
     def read(self) -> np.ndarray:
         return self.value

@@ -1,0 +1,218 @@
+"""Pure stages of the camera reader's error pipeline, over batch arrays.
+
+Each stage is a small function of its random draws (made up front, one
+stream per stage) and its parameters; none keeps state. The reader
+(:mod:`sensors.camera`) composes them. Arrays are batch-first,
+``(batch, n_frames)``; a parameter given per run is a ``(batch,)`` array and
+broadcasts along frames.
+
+Statistics each stage is built to reproduce (and is tested against):
+
+* white noise: std ``σ``;
+* first-order Gauss–Markov: stationary std ``σ``, autocorrelation
+  ``exp(-|lag|/τ)`` — recursion ``x⁺ = a x + σ √(1−a²) ε``, ``a = exp(−Δt/τ)``
+  (textbook identity, see REFERENCES.md);
+* rounding quantiser of step ``q``: error variance ``q²/12`` on a moving
+  signal (Widrow, Kollár & Liu 1996); a fixed bias on a held angle;
+* two-state bursty loss chain: stationary loss rate ``p/(p+r)``, mean burst
+  length ``1/r`` (Gilbert–Elliott model);
+* classification-style reader: ``best`` decoding is a rounding quantiser of
+  the class width; ``weighted`` decoding is smooth, biased towards class
+  centres and compressed near the ends of the class range.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from scipy.signal import lfilter
+
+__all__ = [
+    "white_noise",
+    "gauss_markov",
+    "outlier_offsets",
+    "quantize",
+    "classify",
+    "class_centres",
+    "limit_range",
+    "independent_losses",
+    "burst_chain_probs",
+    "burst_losses",
+    "exposure_weights",
+]
+
+
+def _col(x) -> np.ndarray | float:
+    """A per-run parameter as a ``(batch, 1)`` column; scalars pass through."""
+    a = np.asarray(x, dtype=float)
+    return a[:, None] if a.ndim == 1 else float(a)
+
+
+def white_noise(eps: np.ndarray, std) -> np.ndarray:
+    """Independent noise ``std·ε``; ``eps`` standard normal ``(batch, n)``."""
+    return _col(std) * eps
+
+
+def gauss_markov(eps: np.ndarray, std, tau_s, step_s: float) -> np.ndarray:
+    """First-order Gauss–Markov sequence, started in its stationary state.
+
+    Parameters
+    ----------
+    eps : (batch, n) standard normal draws
+    std : float or (batch,), same unit as the output
+        Stationary standard deviation.
+    tau_s : s
+        Correlation time (autocorrelation ``exp(-lag/τ)``).
+    step_s : s
+        Spacing of the sequence's samples.
+
+    Notes
+    -----
+    ``x₀ = σ ε₀`` and ``x⁺ = a x + σ √(1−a²) ε`` with ``a = exp(−step/τ)``
+    (textbook identity; REFERENCES.md, "Sensor statistics"). Runs along the
+    frame axis with :func:`scipy.signal.lfilter`, vectorised over runs.
+    """
+    eps = np.asarray(eps, dtype=float)
+    if eps.shape[-1] == 0:
+        return eps.copy()
+    a = float(np.exp(-step_s / float(tau_s)))
+    drive = np.sqrt(1.0 - a * a) * eps
+    drive[..., 0] = eps[..., 0]  # stationary start
+    return _col(std) * lfilter([1.0], [1.0, -a], drive, axis=-1)
+
+
+def outlier_offsets(u_hit: np.ndarray, u_size: np.ndarray, prob, size) -> np.ndarray:
+    """Offsets of occasional wild readings.
+
+    A frame is wild with probability ``prob``; its offset has a random sign and
+    a magnitude uniform on ``[size/2, 3·size/2]`` (mean ``size``).
+    ``u_hit`` and ``u_size`` are uniform draws on ``[0, 1)``.
+    """
+    hit = u_hit < _col(prob)
+    # u_size in [0,1): sign from the first half, magnitude from the position
+    sign = np.where(u_size < 0.5, -1.0, 1.0)
+    mag = 0.5 + 2.0 * np.where(u_size < 0.5, u_size, u_size - 0.5)
+    return np.where(hit, sign * mag * _col(size), 0.0)
+
+
+def quantize(x: np.ndarray, step: float) -> np.ndarray:
+    """Round to the nearest multiple of ``step`` (no-op for ``step <= 0``)."""
+    if step <= 0:
+        return x
+    return np.round(x / step) * step
+
+
+def class_centres(width: float, range_: float) -> np.ndarray:
+    """Class centres ``k·width`` covering ``[-range, range]``."""
+    n = int(np.floor(range_ / width + 1e-9))
+    return np.arange(-n, n + 1) * width
+
+
+def classify(
+    x: np.ndarray, centres: np.ndarray, width: float, sharpness: float, decode: str
+) -> tuple[np.ndarray, np.ndarray]:
+    """A classification-style reader: score angle classes, decode a reading.
+
+    Scores are a softmax over classes of ``-sharpness·((x - c)/width)²``.
+
+    Parameters
+    ----------
+    x : (m,) rad
+        Angle the reader perceives.
+    centres : (n_c,) rad
+        Class centres.
+    width : rad
+        Class width.
+    sharpness : 1
+        Score sharpness (larger: scores concentrate on the nearest class).
+    decode : {"best", "weighted"}
+        ``best``: centre of the top-scoring class (steps of ``width``);
+        ``weighted``: score-weighted mean of the centres.
+
+    Returns
+    -------
+    reading : (m,) rad
+    confidence : (m,) 1
+        Score of the top class.
+    """
+    z = (x[..., None] - centres) / width
+    if decode == "best":
+        best = np.clip(np.rint(x / width), centres[0] / width, centres[-1] / width)
+        d_best = x / width - best
+        # top score = 1 / sum_k exp(-s((z_k)^2 - d_best^2))
+        conf = 1.0 / np.exp(-sharpness * (z * z - (d_best * d_best)[..., None])).sum(-1)
+        return best * width, conf
+    logits = -sharpness * z * z
+    logits -= logits.max(-1, keepdims=True)
+    w = np.exp(logits)
+    w /= w.sum(-1, keepdims=True)
+    return w @ centres, w.max(-1)
+
+
+def limit_range(x: np.ndarray, range_: float, mode: str) -> tuple[np.ndarray, np.ndarray]:
+    """Measuring range: ``mode="invalid"`` flags ``|x| > range``; ``"saturate"`` clips.
+
+    Returns ``(reading, in_range)``; with ``saturate`` every reading is valid.
+    """
+    if mode == "saturate":
+        return np.clip(x, -range_, range_), np.ones(x.shape, dtype=bool)
+    return x, np.abs(x) <= range_
+
+
+def independent_losses(u: np.ndarray, prob) -> np.ndarray:
+    """Frames lost independently with probability ``prob`` (float or (batch,))."""
+    return u < _col(prob)
+
+
+def burst_chain_probs(loss_rate, mean_burst_frames) -> tuple[np.ndarray, np.ndarray]:
+    """Transition probabilities ``(p, r)`` of the two-state loss chain.
+
+    ``r = 1/b`` (mean burst length ``b`` frames) and ``p = π r / (1 − π)``
+    (stationary loss rate ``π = p/(p+r)``); Gilbert–Elliott model,
+    REFERENCES.md "Sensor statistics". Needs ``p ≤ 1``.
+    """
+    pi = np.asarray(loss_rate, dtype=float)
+    b = np.asarray(mean_burst_frames, dtype=float)
+    r = 1.0 / b
+    p = pi * r / (1.0 - pi)
+    return p, r
+
+
+def burst_losses(u: np.ndarray, loss_rate, mean_burst_frames) -> np.ndarray:
+    """Lost-frame mask from the two-state good/bad chain (all frames in bad lost).
+
+    ``u`` holds uniform draws ``(batch, n)``; the first frame starts from the
+    stationary distribution. The recursion runs over frames, vectorised over
+    runs.
+    """
+    p, r = burst_chain_probs(loss_rate, mean_burst_frames)
+    batch, n = u.shape
+    p = np.broadcast_to(p, (batch,))
+    r = np.broadcast_to(r, (batch,))
+    pi = np.broadcast_to(np.asarray(loss_rate, dtype=float), (batch,))
+    bad = np.empty((batch, n), dtype=bool)
+    if n == 0:
+        return bad
+    state = u[:, 0] < pi
+    bad[:, 0] = state
+    stay_good_limit = p  # good -> bad when u < p
+    stay_bad_limit = 1.0 - r  # bad stays bad when u < 1 - r
+    for f in range(1, n):
+        state = u[:, f] < np.where(state, stay_bad_limit, stay_good_limit)
+        bad[:, f] = state
+    return bad
+
+
+def exposure_weights(exposure_s: float, step_s: float) -> np.ndarray:
+    """Trapezoid weights of the base-step samples over one exposure.
+
+    The exposure ends at the capture step and lasts ``round(exposure/step)``
+    steps; the trapezoid rule is exact for a bank angle that changes linearly
+    over the exposure, so the reading lags by half the exposure time.
+    Returns ``(m + 1,)`` weights, oldest first, summing to 1 (``[1]`` for 0).
+    """
+    m = int(round(exposure_s / step_s))
+    if m <= 0:
+        return np.ones(1)
+    w = np.ones(m + 1)
+    w[0] = w[-1] = 0.5
+    return w / m
