@@ -179,6 +179,7 @@ class Stepper:
 
         n_ticks = len(s.tick_steps)
         self.rec_bank = np.empty((n + 1, batch))
+        self.camera.history = self.rec_bank  # exposure averaging reads it
         self.rec_rate = np.empty((n + 1, batch))
         self.rec_ail = np.empty((n + 1, batch))
         self.rec_states = np.empty((n + 1, batch, s.plant.n_states)) if record_states else None
