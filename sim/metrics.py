@@ -24,7 +24,6 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.integrate import trapezoid
 
 from sim.trace import Trace
 
@@ -430,7 +429,7 @@ def step_metrics(
     sse = np.abs(np.mean(ys[:, tail] - y1[:, None], axis=1))
 
     peak = np.max(np.abs(ys), axis=1)
-    itae = trapezoid((ts - t_step)[None, :] * err, ts, axis=1)
+    itae = np.trapezoid((ts - t_step)[None, :] * err, ts, axis=1)
 
     return {
         "rise_time_s": rise,
@@ -481,7 +480,7 @@ def hold_metrics(
         raise ValueError("band_rad must be >= 0")
     dur = t[-1] - t[0]
     dt = np.diff(t)
-    rms = np.sqrt(trapezoid(e * e, t, axis=1) / dur)
+    rms = np.sqrt(np.trapezoid(e * e, t, axis=1) / dur)
     out_time = np.sum((np.abs(e[:, :-1]) > band_rad) * dt[None, :], axis=1)
     return {
         "rms_error_rad": rms,
@@ -532,7 +531,7 @@ def actuator_metrics(
         raise ValueError("tol_frac must be in [0, 1)")
     dur = t[-1] - t[0]
     dt = np.diff(t)
-    rms = np.sqrt(trapezoid(a * a, t, axis=1) / dur)
+    rms = np.sqrt(np.trapezoid(a * a, t, axis=1) / dur)
     at_pos = np.abs(a[:, :-1]) >= (1.0 - tol_frac) * limit_rad
     rate = np.diff(a, axis=1) / dt[None, :]
     at_rate = np.abs(rate) >= (1.0 - tol_frac) * rate_limit_rad_s

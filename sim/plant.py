@@ -30,7 +30,6 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-import scipy.integrate
 import scipy.linalg
 
 __all__ = [
@@ -273,6 +272,8 @@ def continuous_response(
     (N, n) ndarray
         States at the times ``t``; row 0 is ``x0``.
     """
+    import scipy.integrate  # cross-checks only: keep it off the start-up path
+
     t = np.asarray(t, dtype=float)
     u_control = np.asarray(u_control, dtype=float)
     u_dist = np.asarray(u_dist, dtype=float)
