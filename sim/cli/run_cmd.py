@@ -8,7 +8,13 @@ from pathlib import Path
 
 from sim.errors import UserInputError
 
-__all__ = ["add_parser", "run"]
+__all__ = ["add_parser", "run", "HEADLINE_METRICS"]
+
+#: metrics drawn as histograms for Monte Carlo sets
+HEADLINE_METRICS = [
+    "settling_time_s", "overshoot_pct", "rms_error_rad",
+    "peak_abs_bank_rad", "aileron_rms_rad", "time_outside_band_s",
+]
 
 
 def add_parser(sub) -> None:
@@ -81,7 +87,8 @@ def run(args: argparse.Namespace) -> int:
 
 
 def _plots(folder: Path, outcome) -> None:
-    from sim.report.plots import plot_aileron, plot_bank, plot_envelope
+    from sim.metrics import METRIC_INFO
+    from sim.report.plots import plot_aileron, plot_bank, plot_envelope, plot_histograms
 
     sc, tr = outcome.scenario, outcome.trace
     worst = 0
@@ -92,3 +99,5 @@ def _plots(folder: Path, outcome) -> None:
     if tr.batch > 1:
         plot_envelope(tr, folder / "envelope.png", bank_limit_rad=sc.criteria.bank_limit_rad,
                       title=f"{sc.title}: bank envelope, {tr.batch} runs")
+        plot_histograms(outcome.metrics, METRIC_INFO, folder / "histograms.png", diverged=tr.diverged,
+                        keys=HEADLINE_METRICS, title=f"{sc.title}: {tr.batch} runs")

@@ -105,3 +105,37 @@ def plot_envelope(trace: Trace, path: Path, *, bank_limit_rad: float | None = No
     ax.legend(loc="best", fontsize=8)
     fig.savefig(path, dpi=110)
     plt.close(fig)
+
+
+def plot_histograms(metrics: dict, info: dict, path: Path, *, diverged: np.ndarray, keys: list[str],
+                    title: str = "") -> None:
+    """Histograms of headline metrics across the runs that did not diverge.
+
+    Runs with an infinite value (e.g. never settled) are counted in the panel
+    title rather than drawn.
+    """
+    plt = pyplot()
+    keys = [k for k in keys if k in metrics]
+    cols = min(3, max(1, len(keys)))
+    rows = int(np.ceil(len(keys) / cols))
+    fig, axes = plt.subplots(rows, cols, figsize=(4.2 * cols, 3.0 * rows), layout="constrained",
+                             squeeze=False)
+    keep = ~np.asarray(diverged, bool)
+    for ax, k in zip(axes.ravel(), keys, strict=False):
+        v = np.asarray(metrics[k], float)[keep] * info[k].scale
+        finite = v[np.isfinite(v)]
+        n_inf = v.size - finite.size
+        if finite.size:
+            ax.hist(finite, bins=min(30, max(5, finite.size // 3)), color="tab:blue", alpha=0.8)
+        unit = f" ({info[k].unit})" if info[k].unit else ""
+        ax.set_xlabel(f"{info[k].label}{unit}")
+        ax.set_ylabel("runs")
+        ax.set_title(f"{info[k].label}" + (f" — {n_inf} runs ∞" if n_inf else ""), fontsize=9)
+        ax.ticklabel_format(axis="x", useOffset=False)
+        ax.grid(alpha=0.3)
+    for ax in axes.ravel()[len(keys):]:
+        ax.set_visible(False)
+    n_div = int((~keep).sum())
+    fig.suptitle((title or "metric histograms") + (f" ({n_div} diverged runs left out)" if n_div else ""))
+    fig.savefig(path, dpi=100)
+    plt.close(fig)

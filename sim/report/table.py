@@ -96,7 +96,7 @@ def render(tables: list[Table], fmt: str, console=None) -> str | None:
             for r in t.rows:
                 lines.append("| " + " | ".join(c.replace("|", "\\|") for c in r) + " |")
             lines.extend(["", *[f"_{n}_" for n in t.notes], ""])
-        return "\n".join(lines)
+        return "\n".join(lines) + "\n"
     raise ValueError(f"unknown format {fmt!r}")
 
 
