@@ -1,0 +1,158 @@
+"""The camera reader's timing, delivery buffer, per-run parameters and streams."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+from numpy.testing import assert_allclose, assert_array_equal
+
+from sensors.camera import BurstConfig, CameraConfig, CameraReader, ClassifierConfig, frame_draws
+from sensors.timing import plan_frames
+from sim.errors import ScenarioError
+from sim.section import Section
+from sim.seeding import run_generators
+from sim.sensor_section import parse_sensor
+
+
+def _rng_for(seed: int, batch: int):
+    return lambda name: run_generators(seed, range(batch), name)
+
+
+def _drive(cfg: CameraConfig, bank_fn, *, dt=0.001, n_steps=20_000, batch=4, seed=1, every=1):
+    """Run the reader alone against a known bank history; return readings at ticks."""
+    cam = CameraReader(cfg, dt)
+    ticks = np.arange(0, n_steps, every)
+    cam.reset(n_steps, ticks, batch, _rng_for(seed, batch))
+    t = np.arange(n_steps + 1) * dt
+    hist = np.repeat(bank_fn(t)[:, None], batch, axis=1)
+    cam.history = hist
+    out_b, out_v, out_a = [], [], []
+    ti = 0
+    for k in range(n_steps + 1):
+        if k in cam.captures:
+            cam.capture(k, hist[k])
+        if ti < ticks.size and ticks[ti] == k:
+            b, v, a = cam.read(k * dt)
+            out_b.append(b.copy()), out_v.append(v.copy()), out_a.append(a.copy())
+            ti += 1
+    return cam, ticks * dt, np.array(out_b), np.array(out_v), np.array(out_a)
+
+
+def test_delivery_buffer_mean_delay_is_latency_plus_half_period():
+    # Mean age of the newest reading at ticks asynchronous to frames = L + T/2
+    # (a sample-and-hold of period T adds T/2 on average; REFERENCES.md "Loop
+    # margins", zero-order hold adds about T/2 — textbook identity).
+    L, rate = 0.05, 30.0
+    cam, t, _, valid, age = _drive(CameraConfig(frame_rate_hz=rate, latency_s=L), lambda t: 0 * t)
+    ok = np.isfinite(age[:, 0])
+    assert_allclose(age[ok].mean(), L + 0.5 / rate, atol=0.001)  # dt = 1 ms grid
+    assert age[ok].min() >= L - 1e-9
+
+
+def test_delivery_in_order_with_random_latency():
+    cfg = CameraConfig(frame_rate_hz=30.0, latency_s=0.02, latency_jitter_s=0.03)
+    cam = CameraReader(cfg, 0.001)
+    cam.reset(20_000, np.arange(20_000), 8, _rng_for(2, 8))
+    d, c = cam.plan.deliver_step, cam.plan.capture_step
+    assert np.all(np.diff(d, axis=1) >= 0)  # in order
+    extra = (d - c) * 0.001 - 0.02
+    assert extra.min() >= -1e-9
+    # in-order delivery can only add delay; mean extra ≥ the exponential mean
+    assert extra.mean() >= 0.03 * 0.9
+
+
+def test_capture_jitter_std():
+    # White per-frame jitter σ: intervals between captures have std √2·σ.
+    eps = np.random.default_rng(3).standard_normal((10, 3001))
+    plan = plan_frames(25.0, 1e-4, 1_200_000, 10, jitter_eps=eps, jitter_s=0.004)
+    intervals = np.diff(plan.capture_step, axis=1) * 1e-4
+    assert_allclose(intervals.mean(), 0.04, rtol=1e-3)
+    assert_allclose(intervals.std(), math.sqrt(2) * 0.004, rtol=0.03)  # SE ≈ 0.7 % (clip at 0.45T: 4.5σ)
+
+
+def test_per_run_latency_and_dropout_arrays():
+    batch = 3
+    lat = np.array([0.0, 0.05, 0.1])
+    drop = np.array([0.0, 0.2, 0.5])
+    cfg = CameraConfig(frame_rate_hz=50.0, latency_s=lat, dropout_prob=drop)
+    cam, t, bank, valid, age = _drive(cfg, lambda t: 0 * t, dt=0.002, n_steps=100_000, batch=batch, every=10)
+    delay = (cam.plan.deliver_step - cam.plan.capture_step) * 0.002
+    assert_allclose(delay[:, 5], lat, atol=1e-12)
+    frame_valid = cam.valid[:-1].mean(axis=0)
+    assert_allclose(frame_valid, 1.0 - drop, atol=0.02)  # 2500 frames: SE ≤ 1 %
+    # a run of the batch with per-run values equals that run alone with floats
+    solo = CameraReader(CameraConfig(frame_rate_hz=50.0, latency_s=0.05, dropout_prob=0.2), 0.002)
+    solo.reset(1000, np.arange(0, 1000, 10), 1, lambda name: run_generators(1, [1], name))
+    assert_array_equal(solo.plan.deliver_step[0], cam.plan.deliver_step[1][: solo.plan.n_frames])
+    with pytest.raises(ValueError):
+        CameraReader(CameraConfig(dropout_prob=np.array([0.1, 0.2])), 0.01).reset(
+            100, np.arange(100), 3, _rng_for(1, 3))
+
+
+def test_per_run_burst_loss_rate():
+    rates = np.array([0.05, 0.3])
+    cfg = CameraConfig(frame_rate_hz=100.0, bursts=BurstConfig(loss_rate=rates, mean_burst_frames=4.0))
+    cam = CameraReader(cfg, 0.01)
+    cam.reset(100_000, np.arange(0, 100_000, 2), 2, _rng_for(4, 2))
+    lost = ~cam._kept
+    # ~100 000 frames, burst variance factor (1+λ)/(1−λ) ≤ 8: SE ≤ 0.5 % abs
+    assert_allclose(lost.mean(axis=0), rates, atol=0.02)
+
+
+def test_adding_a_stage_never_shifts_another_stages_draws():
+    rng_for = _rng_for(9, 5)
+    base = frame_draws(CameraConfig(noise_rad=0.01, dropout_prob=0.1), 200, rng_for)
+    more = frame_draws(CameraConfig(noise_rad=0.01, dropout_prob=0.1, wander_rad=0.01, jitter_s=0.001,
+                                    outlier_prob=0.1, outlier_rad=0.2,
+                                    bursts=BurstConfig(0.1, 3.0)), 200, rng_for)
+    assert_array_equal(base["noise"], more["noise"])
+    assert_array_equal(base["dropout"], more["dropout"])
+
+
+def test_exposure_lags_a_ramp_by_half_the_exposure():
+    cfg = CameraConfig(frame_rate_hz=20.0, exposure_s=0.03)
+    cam, *_ = _drive(cfg, lambda t: 0.5 * t, n_steps=5000, batch=2)
+    cap_t = cam.capture_time[:-1, 0]
+    later = cap_t > 0.05
+    assert_allclose(cam.values[:-1, 0][later], 0.5 * (cap_t[later] - 0.015), atol=1e-12)
+
+
+def test_classifier_reader_confidence_and_saturation():
+    cfg = CameraConfig(frame_rate_hz=50.0, range_rad=math.radians(30.0), beyond_range="saturate",
+                       classifier=ClassifierConfig(math.radians(5.0), 3.0, "best"))
+    cam, *_ = _drive(cfg, lambda t: np.radians(40.0) * np.sin(t), n_steps=8000, batch=1)
+    vals = np.degrees(cam.values[:-1, 0])
+    assert_allclose(vals, np.round(vals / 5.0) * 5.0, atol=1e-9)
+    assert vals.max() <= 30.0 + 1e-9 and cam.valid[:-1].all()
+    assert np.all((cam.confidence[:-1] > 0) & (cam.confidence[:-1] <= 1))
+
+
+def test_sensor_section_keys_and_errors():
+    doc = {
+        "frame_rate_hz": 20.0, "jitter_s": 0.002, "exposure_s": 0.01, "latency_s": 0.08,
+        "latency_jitter_s": 0.01, "noise_deg": 0.3, "wander_deg": 0.5, "wander_time_s": 3.0,
+        "bias_deg": 1.0, "scale": 1.02, "quantization_deg": 0.5, "outlier_prob": 0.01,
+        "outlier_deg": 15.0, "range_deg": 60.0, "beyond_range": "saturate", "dropout_prob": 0.01,
+        "classifier": {"class_width_deg": 2.0, "sharpness": 3.0, "decode": "weighted"},
+        "bursts": {"loss_rate": 0.1, "mean_burst_frames": 5.0},
+        "gyro": {"rate_hz": 50.0, "noise_deg_s": 0.1, "bias_drift_deg_s": 0.05, "bias_drift_time_s": 60.0},
+    }
+    cam, gyro = parse_sensor(Section(doc, file="f.toml", path="sensor"), base_step_s=0.01)
+    assert_allclose(cam.wander_rad, math.radians(0.5))
+    assert cam.classifier.decode == "weighted" and cam.bursts.mean_burst_frames == 5.0
+    assert_allclose(gyro.bias_drift_rad_s, math.radians(0.05))
+    bad = [
+        ({"beyond_range": "clip"}, "beyond_range"),
+        ({"wander_deg": -1.0}, "wander_deg"),
+        ({"exposure_s": 1.0}, "exposure_s"),
+        ({"bursts": {"loss_rate": 0.8, "mean_burst_frames": 2.0}}, "mean_burst_frames"),
+        ({"classifier": {"decode": "mean"}}, "decode"),
+        ({"classifer": {}}, "classifer"),
+        ({"bursts": {"loss_rate": 0.1}}, "mean_burst_frames"),
+    ]
+    for extra, key in bad:
+        with pytest.raises(ScenarioError, match=key) as info:
+            parse_sensor(Section(extra, file="f.toml", path="sensor"), base_step_s=0.01)
+        assert "f.toml" in str(info.value) and "\n" not in str(info.value)
