@@ -22,6 +22,11 @@ instability) is a sum of paths, each a rational part times its own exact delay:
       L = (kp + ki/s) · A(s) Gφ(s) · e^{-s(τc + T/2)}
         + kd/(1 + s/ωf) · A(s) Gp(s) · e^{-s(τg + T/2)}
 
+With ``derivative_delay_s = τd > 0`` (a rate taken as a backward difference of
+successive camera frames) the measurement case splits into two paths::
+
+      L = [(kp + ki/s) + kd s/(1 + s/ωf) · e^{-s τd}] · A(s) Gφ(s) · e^{-s(τc + T/2)}
+
 (``A(s)`` is the servo lag, ``ωf = 2π·derivative_filter_hz``; the gyro reads the
 body roll rate ``p`` and its derivative term uses the same first-order filter as
 the controller in :mod:`controllers.pid`.)
@@ -42,7 +47,6 @@ from __future__ import annotations
 
 import math
 import os
-import tempfile
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -117,6 +121,12 @@ class LoopParts:
         ``ωf = 2π f``. ``inf`` (no filter) is allowed only for the gyro source.
     derivative_source : {"measurement", "gyro"}
         Rate from the delayed camera bank or from the gyro's roll rate.
+    derivative_delay_s : float, s
+        Extra effective delay of the derivative term when it differentiates
+        the camera reading (``"measurement"`` source only): a backward
+        difference of successive frames, ``(φ_k − φ_{k−1})/T``, is
+        ``e^{-sT/2}·(2/T)·sinh(sT/2)`` ≈ ``s·e^{-sT/2}``, half a frame period
+        later than the proportional term. Default 0.
     """
 
     plant_a: np.ndarray
@@ -132,6 +142,7 @@ class LoopParts:
     kd_s: float = 0.0
     derivative_filter_hz: float = 5.0
     derivative_source: str = "measurement"
+    derivative_delay_s: float = 0.0
 
     def __post_init__(self) -> None:
         a = np.array(self.plant_a, dtype=float)
@@ -154,7 +165,8 @@ class LoopParts:
                     f"LoopParts.{name} must be an integer in [0, {n - 1}], got {idx!r}"
                 )
             object.__setattr__(self, name, int(idx))
-        for name in ("actuator_tau_s", "camera_delay_s", "gyro_delay_s", "controller_dt_s"):
+        for name in ("actuator_tau_s", "camera_delay_s", "gyro_delay_s", "controller_dt_s",
+                     "derivative_delay_s"):
             object.__setattr__(self, name, _nonneg(name, getattr(self, name)))
         for name in ("kp", "ki_per_s", "kd_s"):
             value = float(getattr(self, name))
@@ -213,8 +225,23 @@ def _actuator(parts: LoopParts) -> ct.TransferFunction:
     return ct.tf([1.0], [1.0])
 
 
+def _split_derivative(parts: LoopParts) -> bool:
+    """Whether the camera-derivative term needs its own path (its own delay)."""
+    return (parts.derivative_source == "measurement" and parts.kd_s != 0.0
+            and parts.derivative_delay_s > 0.0)
+
+
+def _camera_derivative(parts: LoopParts) -> ct.TransferFunction:
+    wf = 2.0 * math.pi * parts.derivative_filter_hz
+    return ct.tf([parts.kd_s, 0.0], [1.0 / wf, 1.0])
+
+
 def _controller_blocks(parts: LoopParts) -> tuple[ct.TransferFunction, ct.TransferFunction]:
-    """(controller acting on the camera bank, controller acting on the gyro rate)."""
+    """(controller acting on the camera bank, controller acting on the gyro rate).
+
+    When the camera-derivative term has its own delay (:func:`_split_derivative`)
+    it is left out of the first block; :func:`_camera_derivative` gives it.
+    """
     wf = 2.0 * math.pi * parts.derivative_filter_hz
     lowpass = ct.tf([1.0], [1.0]) if math.isinf(wf) else ct.tf([1.0], [1.0 / wf, 1.0])
     cam = ct.tf([parts.kp], [1.0])
@@ -223,7 +250,8 @@ def _controller_blocks(parts: LoopParts) -> tuple[ct.TransferFunction, ct.Transf
     gyro = ct.tf([0.0], [1.0])
     if parts.kd_s != 0.0:
         if parts.derivative_source == "measurement":
-            cam = cam + ct.tf([parts.kd_s, 0.0], [1.0 / wf, 1.0])
+            if not _split_derivative(parts):
+                cam = cam + _camera_derivative(parts)
         else:
             gyro = parts.kd_s * lowpass
     return cam, gyro
@@ -244,6 +272,9 @@ class _Evaluator:
         hold = 0.5 * parts.controller_dt_s
         g_phi = ct.tf(_plant_output(parts, parts.phi_index))
         self.paths = [_Path(cam_c * act * g_phi, parts.camera_delay_s + hold)]
+        if _split_derivative(parts):
+            self.paths.append(_Path(_camera_derivative(parts) * act * g_phi,
+                                    parts.camera_delay_s + parts.derivative_delay_s + hold))
         if parts.derivative_source == "gyro" and parts.kd_s != 0.0:
             g_p = ct.tf(_plant_output(parts, parts.p_index))
             self.paths.append(_Path(gyro_c * act * g_p, parts.gyro_delay_s + hold))
@@ -362,7 +393,10 @@ def rational_loop(parts: LoopParts, pade_order: int = 6) -> ct.StateSpace:
         summer = ct.ss([], [], [], [[1.0, 1.0]])
         return summer * ctrl * sensors * plant * front
     g_phi = _plant_output(parts, parts.phi_index)
-    return ct.ss(cam_c) * delay(parts.camera_delay_s) * g_phi * front
+    ctrl_cam = ct.ss(cam_c)
+    if _split_derivative(parts):
+        ctrl_cam = ctrl_cam + ct.ss(_camera_derivative(parts)) * delay(parts.derivative_delay_s)
+    return ctrl_cam * delay(parts.camera_delay_s) * g_phi * front
 
 
 # ---------------------------------------------------------------------------
@@ -616,119 +650,12 @@ def margins(parts: LoopParts, omega: Any = None, pade_order: int = 6) -> LoopMar
 
 
 # ---------------------------------------------------------------------------
-# Plot
+# Plot (lives in :mod:`sim.analysis.margin_plots`; kept here for existing callers)
 # ---------------------------------------------------------------------------
 
 
 def plot_margins(parts: LoopParts, path: str | os.PathLike[str], omega: Any = None) -> Path:
-    """Bode (margins marked), Nichols and Nyquist-near-−1 plots on one PNG.
+    """Bode, Nichols and Nyquist plots; see :func:`sim.analysis.margin_plots.plot_margins`."""
+    from .margin_plots import plot_margins as _plot
 
-    Parameters
-    ----------
-    parts : LoopParts
-        The loop.
-    path : str or path-like
-        PNG file to write (atomically: temp file, then rename).
-    omega : array_like, rad/s, optional
-        Grid (default :data:`DEFAULT_OMEGA`).
-
-    Returns
-    -------
-    pathlib.Path
-        The written file.
-    """
-    import matplotlib
-
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
-
-    w = np.unique(_as_omega(DEFAULT_OMEGA if omega is None else omega))
-    m = margins(parts, w)
-    big_l = open_loop_response(parts, w)
-    mag_db = 20.0 * np.log10(np.abs(big_l))
-    phase = np.degrees(np.unwrap(np.angle(big_l)))
-    # Shift the unwrapped phase so it starts in (−360, 0] for readability.
-    phase -= 360.0 * math.ceil(phase[0] / 360.0)
-
-    fig, axes = plt.subplots(2, 2, figsize=(12, 8))
-    ax_mag, ax_nic = axes[0]
-    ax_ph, ax_nyq = axes[1]
-
-    ax_mag.semilogx(w, mag_db, color="C0")
-    ax_mag.axhline(0.0, color="k", lw=0.6)
-    ax_mag.set_ylabel("|L| (dB)")
-    ax_mag.set_title("Loop broken at aileron command (exact delays)")
-    ax_ph.semilogx(w, phase, color="C0")
-    for k in range(-8, 1):
-        ax_ph.axhline(-180.0 + 360.0 * k, color="k", lw=0.4, ls=":")
-    ax_ph.set_ylim(max(phase.min(), -720.0) - 20.0, max(phase.max(), -90.0) + 20.0)
-    ax_ph.set_ylabel("∠L (deg)")
-    ax_ph.set_xlabel("ω (rad/s)")
-    if math.isfinite(m.gain_crossover_rad_s):
-        wc = m.gain_crossover_rad_s
-        ph_c = np.interp(wc, w, phase)
-        ax_mag.axvline(wc, color="C2", ls="--", lw=0.8)
-        ax_ph.axvline(wc, color="C2", ls="--", lw=0.8)
-        ax_ph.annotate(f"PM {m.phase_margin_deg:.1f}° @ {wc:.3g} rad/s\n"
-                       f"delay margin {m.delay_margin_s * 1e3:.0f} ms",
-                       (wc, ph_c), textcoords="offset points", xytext=(8, 8), color="C2")
-    if math.isfinite(m.phase_crossover_rad_s):
-        wp = m.phase_crossover_rad_s
-        ax_mag.axvline(wp, color="C3", ls="--", lw=0.8)
-        ax_mag.annotate(f"GM {m.gain_margin_db:.1f} dB @ {wp:.3g} rad/s",
-                        (wp, -m.gain_margin_db), textcoords="offset points",
-                        xytext=(8, -14), color="C3")
-    for ax in (ax_mag, ax_ph):
-        ax.grid(True, which="both", lw=0.3)
-
-    sel = (mag_db > -40.0) & (mag_db < 40.0)
-    ax_nic.plot(phase[sel], mag_db[sel], color="C0")
-    if np.any(sel):
-        lo_ph, hi_ph = phase[sel].min() - 30.0, phase[sel].max() + 30.0
-        for k in range(-8, 2):
-            if lo_ph <= -180.0 + 360.0 * k <= hi_ph:
-                ax_nic.plot(-180.0 + 360.0 * k, 0.0, "r+", ms=12)
-    ax_nic.set_xlabel("∠L (deg)")
-    ax_nic.set_ylabel("|L| (dB)")
-    ax_nic.set_title("Nichols")
-    ax_nic.grid(True, lw=0.3)
-
-    ax_nyq.plot(big_l.real, big_l.imag, color="C0", label="L(jω)")
-    ax_nyq.plot(big_l.real, -big_l.imag, color="C0", ls=":", lw=0.7)
-    ax_nyq.plot(-1.0, 0.0, "r+", ms=12)
-    th = np.linspace(0.0, 2.0 * math.pi, 361)
-    ax_nyq.plot(np.cos(th), np.sin(th), color="0.6", lw=0.6, label="|L| = 1")
-    # Balanced disk of "bad" loop values: L with |(1−L)/(1+L)|/2 ≥ 1/α.
-    a = m.disk_alpha
-    if a < 2.0:
-        lo, hi = -(2.0 + a) / (2.0 - a), -(2.0 - a) / (2.0 + a)
-        centre, radius = 0.5 * (lo + hi), 0.5 * (hi - lo)
-        ax_nyq.plot(centre + radius * np.cos(th), radius * np.sin(th), color="C3", lw=0.8,
-                    label=f"disk α={a:.2f}: ±{m.disk_gain_margin_db:.1f} dB, "
-                          f"±{m.disk_phase_margin_deg:.1f}°")
-    ax_nyq.set_xlim(-3.0, 1.0)
-    ax_nyq.set_ylim(-2.0, 2.0)
-    ax_nyq.set_aspect("equal")
-    ax_nyq.set_title("Nyquist near −1")
-    ax_nyq.legend(loc="lower right", fontsize=8)
-    ax_nyq.grid(True, lw=0.3)
-    fig.suptitle(
-        f"GM {m.gain_margin_db:.1f} dB, PM {m.phase_margin_deg:.1f}°, "
-        f"bandwidth {m.bandwidth_rad_s:.3g} rad/s, "
-        f"{'stable' if m.closed_loop_stable else 'UNSTABLE'} (Padé {m.pade_order}), "
-        f"MIL-F-9490D {'pass' if m.meets_mil_f_9490d else 'fail'}"
-    )
-    fig.tight_layout()
-
-    out = Path(path)
-    out.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(suffix=".png", dir=out.parent)
-    os.close(fd)
-    try:
-        fig.savefig(tmp, dpi=110, format="png")
-        os.replace(tmp, out)
-    finally:
-        plt.close(fig)
-        if os.path.exists(tmp):
-            os.remove(tmp)
-    return out
+    return _plot(parts, path, omega)
