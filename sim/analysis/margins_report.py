@@ -49,7 +49,7 @@ from .linear_loop import (
 )
 from .loop_from_scenario import CameraDelay, camera_delay, has_linear_model, loop_parts_from_scenario
 
-__all__ = ["MarginsReport", "margins_report", "margins_tables", "write_margin_plots"]
+__all__ = ["MarginsReport", "margins_report", "margins_tables", "run_margins_table", "write_margin_plots"]
 
 
 @dataclass(frozen=True)
@@ -408,6 +408,14 @@ def margins_tables(rep: MarginsReport, *, handling: bool = True, delay: bool = T
     times = ", ".join(f"{k} {v:.2f} s" for k, v in rep.timings_s.items())
     tables[-1].notes.append(f"Computed in {rep.total_s:.2f} s ({times}).")
     return tables
+
+
+def run_margins_table(sc: Scenario, *, allow_code: bool = False) -> Table:
+    """The margins table alone (analytic beside empirical), for ``rollrig run --margins``."""
+    rep = margins_report(sc, handling=False, allow_code=allow_code)
+    t = _margin_table(rep)
+    t.notes.append(f"Margins computed in {rep.total_s:.2f} s.")
+    return t
 
 
 # ------------------------------------------------------------------ plots

@@ -32,6 +32,8 @@ def add_parser(sub) -> None:
     p.add_argument("--plot", action="store_true", help="also write PNG plots")
     p.add_argument("--allow-code", action="store_true",
                    help="allow the scenario to load a user controller class (runs your code)")
+    p.add_argument("--margins", action="store_true",
+                   help="also print stability margins (analytic and empirical, see rollrig margins)")
     p.set_defaults(func=run)
 
 
@@ -70,6 +72,10 @@ def run(args: argparse.Namespace) -> int:
     from sim.report.run_tables import run_tables
 
     tables = run_tables(outcome)
+    if args.margins:
+        from sim.analysis.margins_report import run_margins_table
+
+        tables.append(run_margins_table(sc, allow_code=args.allow_code))
     text = render(tables, args.format)
     if text is not None:
         sys.stdout.write(text)

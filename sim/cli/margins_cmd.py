@@ -1,0 +1,97 @@
+"""``rollrig margins FILE``: stability margins and handling-quality ratings.
+
+Prints the analytic margins (PID loops: frequency response with the camera's
+delay, exact) beside the empirical ones (any controller: simulation), and the
+MIL-F-8785C ratings of the airframe and the closed loop. python-control is
+imported only when this command runs.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from pathlib import Path
+
+from sim.errors import UserInputError
+
+__all__ = ["add_parser", "run"]
+
+CLASSES = ("I", "II", "III", "IV", "II-C", "II-L")
+CATEGORIES = ("A", "B", "C")
+
+
+def add_parser(sub) -> None:
+    p = sub.add_parser(
+        "margins", help="stability margins (analytic and empirical) and handling qualities",
+        description=(
+            "Gain, phase, delay and disk margins of the loop broken at the aileron command "
+            "(analytic, PID only), empirical gain/delay/frame-loss margins by simulation "
+            "(any controller), and MIL-F-8785C ratings of the airframe and the closed loop."
+        ),
+    )
+    p.add_argument("scenario", metavar="FILE", help="scenario file (TOML)")
+    p.add_argument("--class", dest="aircraft_class", type=str.upper, choices=CLASSES, default="I",
+                   help="MIL-F-8785C aircraft class (default I: small light airplanes)")
+    p.add_argument("--category", type=str.upper, choices=CATEGORIES, default="B",
+                   help="flight-phase category (default B: cruise, gradual manoeuvres)")
+    p.add_argument("--format", choices=("table", "csv", "json", "md"), default="table",
+                   help="how to print the tables (default: table)")
+    p.add_argument("--plot", action="store_true",
+                   help="write Bode/Nichols/Nyquist plots (PID) into an output folder")
+    p.add_argument("--out", type=Path, metavar="DIR",
+                   help="output folder (default with --plot: rollrig-runs/<name>-margins-<time>)")
+    p.add_argument("--force", action="store_true", help="replace an existing output folder")
+    p.add_argument("--no-empirical", action="store_true", help="skip the simulated margins")
+    p.add_argument("--seed", type=int, default=0, help="seed of the frame-loss draws (default 0)")
+    p.add_argument("--allow-code", action="store_true",
+                   help="allow the scenario to load a user controller class (runs your code)")
+    p.set_defaults(func=run)
+
+
+def run(args: argparse.Namespace) -> int:
+    from sim.report.outdir import check_out_dir, default_out_dir, manifest, output_folder, write_json
+    from sim.report.table import render
+    from sim.scenario import load_scenario
+
+    sc = load_scenario(args.scenario)
+    if args.seed < 0:
+        raise UserInputError(f"--seed {args.seed}: allowed: seed ≥ 0")
+    out_dir = None
+    if args.plot or args.out is not None:
+        out_dir = args.out or default_out_dir(f"{Path(sc.path).stem}-margins")
+        check_out_dir(out_dir, args.force)
+
+    from sim.analysis.empirical import EmpiricalSettings
+    from sim.analysis.margins_report import margins_report, margins_tables, write_margin_plots
+
+    try:
+        rep = margins_report(
+            sc, aircraft_class=args.aircraft_class, category=args.category,
+            empirical=not args.no_empirical, settings=EmpiricalSettings(seed=args.seed),
+            allow_code=args.allow_code,
+        )
+    except UserInputError:
+        raise
+    except ValueError as exc:  # class/category combination refused by the tables
+        raise UserInputError(f"--class {args.aircraft_class} --category {args.category}: {exc}") from None
+    tables = margins_tables(rep)
+    text = render(tables, args.format)
+    if text is not None:
+        sys.stdout.write(text)
+
+    if out_dir is not None:
+        with output_folder(out_dir, force=args.force) as tmp:
+            write_json(tmp / "manifest.json", manifest(
+                scenario_path=sc.path, scenario_sha256=sc.sha256, seed=args.seed, runs=[0],
+                extra={"title": sc.title, "command": "margins", "class": rep.aircraft_class,
+                       "category": rep.category},
+            ))
+            write_json(tmp / "margins.json", [{"title": t.title, "rows": t.records, "notes": t.notes}
+                                              for t in tables])
+            (tmp / "margins.md").write_text(render(tables, "md"))
+            written = write_margin_plots(rep, tmp) if args.plot else []
+        stream = sys.stdout if args.format == "table" else sys.stderr
+        if args.plot and not written:
+            print("no linear model for this controller: no Bode/Nichols/Nyquist plot", file=stream)
+        print(f"wrote {out_dir}/", file=stream)
+    return 0
