@@ -200,24 +200,29 @@ def frame_draws(cfg: CameraConfig, n_frames: int, rng_for: RngFor) -> dict[str, 
     ``(batch, 2, n_frames)``); only stages that are switched on draw.
     """
     def stack(stream: str, draw) -> np.ndarray:
-        return np.stack([draw(g) for g in rng_for(stream)])
+        gens = rng_for(stream)
+        out = np.empty((len(gens), n))
+        for row, g in zip(out, gens, strict=True):
+            draw(g, row)
+        return out
 
     n = n_frames
     draws: dict[str, np.ndarray] = {}
     if cfg.noise_rad > 0:
-        draws["noise"] = stack("camera.noise", lambda g: g.standard_normal(n))
+        draws["noise"] = stack("camera.noise", lambda g, o: g.standard_normal(out=o))
     if _any_positive(cfg.dropout_prob):
-        draws["dropout"] = stack("camera.dropout", lambda g: g.random(n))
+        draws["dropout"] = stack("camera.dropout", lambda g, o: g.random(out=o))
     if cfg.jitter_s > 0:
-        draws["jitter"] = stack("camera.jitter", lambda g: g.standard_normal(n))
+        draws["jitter"] = stack("camera.jitter", lambda g, o: g.standard_normal(out=o))
     if cfg.latency_jitter_s > 0:
-        draws["latency"] = stack("camera.latency", lambda g: g.standard_exponential(n))
+        draws["latency"] = stack("camera.latency", lambda g, o: g.standard_exponential(out=o))
     if cfg.wander_rad > 0:
-        draws["wander"] = stack("camera.wander", lambda g: g.standard_normal(n))
+        draws["wander"] = stack("camera.wander", lambda g, o: g.standard_normal(out=o))
     if cfg.outlier_prob > 0 and cfg.outlier_rad > 0:
-        draws["outliers"] = stack("camera.outliers", lambda g: g.random((2, n)))
+        u = np.stack([g.random((2, n)) for g in rng_for("camera.outliers")])
+        draws["outliers"] = u
     if cfg.bursts is not None and _any_positive(cfg.bursts.loss_rate):
-        draws["bursts"] = stack("camera.bursts", lambda g: g.random(n))
+        draws["bursts"] = stack("camera.bursts", lambda g, o: g.random(out=o))
     return draws
 
 
@@ -282,9 +287,20 @@ class CameraReader:
     """The stateful shell the stepping core drives.
 
     Call :meth:`reset` once per batch, :meth:`capture` at every base step in
-    :attr:`captures`, and :meth:`read` at every controller tick. When the
-    exposure is not zero the core must set :attr:`history` to its
-    ``(n_steps + 1, batch)`` record of true bank (written before capture).
+    :attr:`captures`, and :meth:`read` at every controller tick.
+
+    Two ways to see the true bank:
+
+    * *record mode*: the driver sets :attr:`history` to its
+      ``(n_steps + 1, batch)`` record of true bank (row ``k`` written by the
+      end of step ``k``). Then :attr:`captures` is empty and nothing runs per
+      base step: at a tick, the newest delivered frame's reading is computed
+      from the bank recorded at its capture step (frames are delivered after
+      they are captured, so that row is always written). The stages are pure
+      functions of that bank and the frame's up-front draws, so the result is
+      the same as capturing eagerly. Exposure averaging needs this mode.
+    * *capture mode* (no history): :meth:`capture` evaluates the frames due at
+      each step and stores them.
     """
 
     def __init__(self, cfg: CameraConfig, dt: float) -> None:
@@ -304,13 +320,24 @@ class CameraReader:
             jitter_eps=draws.get("jitter"), jitter_s=cfg.jitter_s,
             latency_extra_s=None if "latency" not in draws else cfg.latency_jitter_s * draws["latency"],
         )
-        self.captures = self.plan.captures_by_step()
+        self.n_frames, self.batch = n, batch
+        self._captures = self.plan.captures_by_step()
         self._latest = self.plan.latest_delivered(np.asarray(tick_steps))
-        # frame-major arrays; one spare row (index -1) stands for "no frame yet"
+        # frame-major (n + 1, batch) arrays; the spare last row (index -1)
+        # stands for "no frame yet" and is never valid
         off = frame_offsets(cfg, draws, batch, n)
-        self._offset = off if np.isscalar(off) else np.ascontiguousarray(np.asarray(off).T)
+        if np.isscalar(off):
+            self._offset = off
+        else:
+            self._offset = np.zeros((n + 1, batch))
+            self._offset[:n] = np.asarray(off).T
         lost = frame_losses(cfg, draws, batch)
-        self._kept = None if lost is None else np.ascontiguousarray(~lost.T)
+        self._kept = np.ones((n + 1, batch), dtype=bool)
+        if lost is not None:
+            self._kept[:n] = ~lost.T
+        self._kept[n] = False
+        self._cap_step = np.zeros((n + 1, batch), dtype=np.int64)
+        self._cap_step[:n] = self.plan.capture_step.T
         self._centres = (None if cfg.classifier is None
                          else stages.class_centres(cfg.classifier.class_width_rad, cfg.range_rad))
         self._weights = stages.exposure_weights(cfg.exposure_s, self.dt)
@@ -323,26 +350,43 @@ class CameraReader:
         self._last_time = np.full(batch, -np.inf)
         self._rows = np.arange(batch)
         self._tick = 0
+        self._prev_idx = None
 
-    def _exposed(self, k: int, bank: np.ndarray, rows) -> np.ndarray:
+    @property
+    def captures(self) -> dict:
+        """Base steps at which :meth:`capture` must be called (empty in record mode)."""
+        return {} if self.history is not None else self._captures
+
+    def _evaluate(self, frames, rows, bank: np.ndarray | None = None):
+        """Reading, validity and confidence of frames (given bank, or from history)."""
         w = self._weights
-        if w.size == 1:
-            return bank[rows]
-        if self.history is None:
-            raise RuntimeError("exposure_s > 0 needs CameraReader.history (the core's bank record)")
-        idx = np.clip(np.arange(k - w.size + 1, k + 1), 0, None)
-        return w @ self.history[idx][:, rows]
+        if bank is None:
+            cap = self._cap_step[frames, rows]
+            if w.size == 1:
+                bank = self.history[cap, rows]
+            else:  # one gather per base step of the exposure (few), oldest first
+                bank = w[-1] * self.history[cap, rows]
+                for i in range(1, w.size):
+                    bank += w[-1 - i] * self.history[np.maximum(cap - i, 0), rows]
+        off = self._offset if np.isscalar(self._offset) else self._offset[frames, rows]
+        value, ok, conf = read_frames(bank, self.cfg, off, self._centres)
+        ok &= self._kept[frames, rows]
+        return value, ok, conf
 
     def capture(self, k: int, bank: np.ndarray) -> None:
-        """Capture the frames due at base step ``k`` from true bank (batch,)."""
-        hit = self.captures.get(k)
+        """Capture the frames due at base step ``k`` from true bank (batch,).
+
+        Does nothing in record mode (readings are computed at the ticks).
+        """
+        if self.history is not None:
+            return
+        hit = self._captures.get(k)
         if hit is None:
             return
         rows, frames = hit
-        off = self._offset if np.isscalar(self._offset) else self._offset[frames, rows]
-        value, ok, conf = read_frames(self._exposed(k, bank, rows), self.cfg, off, self._centres)
-        if self._kept is not None:
-            ok &= self._kept[frames, rows]
+        if self._weights.size > 1:
+            raise RuntimeError("exposure_s > 0 needs CameraReader.history (the true-bank record)")
+        value, ok, conf = self._evaluate(frames, rows, bank[rows])
         self.values[frames, rows] = value
         self.valid[frames, rows] = ok
         if conf is not None:
@@ -352,7 +396,34 @@ class CameraReader:
         """(bank, valid, age) at the next controller tick, time ``t``."""
         idx = self._latest[self._tick]
         self._tick += 1
-        valid = self.valid[idx, self._rows]
-        self._last_value = np.where(valid, self.values[idx, self._rows], self._last_value)
-        self._last_time = np.where(valid, self.capture_time[idx, self._rows], self._last_time)
+        rows = self._rows
+        if self.history is not None:
+            prev = self._prev_idx
+            if prev is None:
+                value, valid, _ = self._evaluate(idx, rows)
+            elif np.array_equal(idx, prev):  # same frames as the last tick
+                value, valid = self._prev_value, self._prev_valid
+            else:  # evaluate only the runs whose newest frame changed
+                new = np.flatnonzero(idx != prev)
+                value, valid = self._prev_value.copy(), self._prev_valid.copy()
+                value[new], valid[new], _ = self._evaluate(idx[new], new)
+            self._prev_idx, self._prev_value, self._prev_valid = idx, value, valid
+        else:
+            value, valid = self.values[idx, rows], self.valid[idx, rows]
+        self._last_value = np.where(valid, value, self._last_value)
+        self._last_time = np.where(valid, self.capture_time[idx, rows], self._last_time)
         return self._last_value, valid, t - self._last_time
+
+    def frame_readings(self) -> tuple[np.ndarray, np.ndarray, np.ndarray | None]:
+        """Every frame's reading, validity and confidence, ``(batch, n_frames)``.
+
+        In record mode they are computed from the history (call after the
+        run); frames captured after the last recorded step are invalid.
+        """
+        n = self.n_frames
+        if self.history is None:
+            conf = None if self.confidence is None else self.confidence[:n].T.copy()
+            return self.values[:n].T.copy(), self.valid[:n].T.copy(), conf
+        frames = np.arange(n)[:, None]
+        value, ok, conf = self._evaluate(frames, self._rows[None, :])
+        return value.T.copy(), ok.T.copy(), None if conf is None else conf.T.copy()

@@ -47,11 +47,18 @@ class GyroConfig:
 
 def gyro_errors(cfg: GyroConfig, n: int, rng_for: Callable[[str], Sequence[np.random.Generator]]):
     """Per-sample error ``(batch, n)`` rad/s (bias + drift + noise), or the bias alone."""
+    def normals(stream: str) -> np.ndarray:
+        gens = rng_for(stream)
+        out = np.empty((len(gens), n))
+        for row, g in zip(out, gens, strict=True):
+            g.standard_normal(out=row)
+        return out
+
     total = None
     if cfg.noise_rad_s > 0:
-        total = cfg.noise_rad_s * np.stack([g.standard_normal(n) for g in rng_for("gyro.noise")])
+        total = cfg.noise_rad_s * normals("gyro.noise")
     if cfg.bias_drift_rad_s > 0:
-        eps = np.stack([g.standard_normal(n) for g in rng_for("gyro.drift")])
+        eps = normals("gyro.drift")
         drift = gauss_markov(eps, cfg.bias_drift_rad_s, cfg.bias_drift_time_s, 1.0 / cfg.rate_hz)
         total = drift if total is None else total + drift
     if total is None:

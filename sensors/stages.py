@@ -68,16 +68,23 @@ def gauss_markov(eps: np.ndarray, std, tau_s, step_s: float) -> np.ndarray:
     Notes
     -----
     ``x₀ = σ ε₀`` and ``x⁺ = a x + σ √(1−a²) ε`` with ``a = exp(−step/τ)``
-    (textbook identity; REFERENCES.md, "Sensor statistics"). Runs along the
-    frame axis with :func:`scipy.signal.lfilter`, vectorised over runs.
+    (textbook identity; REFERENCES.md, "Sensor statistics"). The recursion runs
+    along the sample axis, vectorised over runs.
     """
     eps = np.asarray(eps, dtype=float)
-    if eps.shape[-1] == 0:
-        return eps.copy()
     a = float(np.exp(-step_s / float(tau_s)))
-    drive = np.sqrt(1.0 - a * a) * eps
-    drive[..., 0] = eps[..., 0]  # stationary start
-    return _col(std) * lfilter([1.0], [1.0, -a], drive, axis=-1)
+    x = np.sqrt(1.0 - a * a) * eps
+    if eps.shape[-1] == 0:
+        return x
+    x[..., 0] = eps[..., 0]  # stationary start
+    if x.ndim == 1 or x.shape[0] < 8:
+        x = lfilter([1.0], [1.0, -a], x, axis=-1)
+    else:  # many runs: a loop over samples, vectorised over runs, is ~10x faster than lfilter
+        xt = np.ascontiguousarray(x.T)
+        for f in range(1, xt.shape[0]):
+            xt[f] += a * xt[f - 1]
+        x = xt.T
+    return _col(std) * x
 
 
 def outlier_offsets(u_hit: np.ndarray, u_size: np.ndarray, prob, size) -> np.ndarray:
@@ -134,18 +141,24 @@ def classify(
     confidence : (m,) 1
         Score of the top class.
     """
-    z = (x[..., None] - centres) / width
+    x = np.asarray(x, dtype=float)
+    lo, hi = np.rint(centres[0] / width), np.rint(centres[-1] / width)
+    u = x / width
+    near = np.clip(np.rint(u), lo, hi)
+    d = u - near
+    # weights relative to the nearest class (m = 0): exp(-s((d-m)² - d²)) =
+    # exp(s·m·(2d - m)) ≤ 1 for every class inside the range. Classes farther
+    # than K carry < exp(-30) of the top weight and are left out.
+    k = min(int(np.ceil(np.sqrt(30.0 / sharpness) + 1.0)), int(hi - lo))
+    m = np.arange(-k, k + 1, dtype=float)
+    w = np.exp(np.minimum(((2.0 * d)[..., None] - m) * (sharpness * m), 0.0))
+    if near.size and (near.min() - k < lo or near.max() + k > hi):  # window passes an end
+        j = near[..., None] + m
+        w *= (j >= lo) & (j <= hi)
+    total = w.sum(-1)
     if decode == "best":
-        best = np.clip(np.rint(x / width), centres[0] / width, centres[-1] / width)
-        d_best = x / width - best
-        # top score = 1 / sum_k exp(-s((z_k)^2 - d_best^2))
-        conf = 1.0 / np.exp(-sharpness * (z * z - (d_best * d_best)[..., None])).sum(-1)
-        return best * width, conf
-    logits = -sharpness * z * z
-    logits -= logits.max(-1, keepdims=True)
-    w = np.exp(logits)
-    w /= w.sum(-1, keepdims=True)
-    return w @ centres, w.max(-1)
+        return near * width, 1.0 / total
+    return (near + (w @ m) / total) * width, 1.0 / total
 
 
 def limit_range(x: np.ndarray, range_: float, mode: str) -> tuple[np.ndarray, np.ndarray]:

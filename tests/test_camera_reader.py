@@ -20,14 +20,16 @@ def _rng_for(seed: int, batch: int):
     return lambda name: run_generators(seed, range(batch), name)
 
 
-def _drive(cfg: CameraConfig, bank_fn, *, dt=0.001, n_steps=20_000, batch=4, seed=1, every=1):
+def _drive(cfg: CameraConfig, bank_fn, *, dt=0.001, n_steps=20_000, batch=4, seed=1, every=1,
+           record=True):
     """Run the reader alone against a known bank history; return readings at ticks."""
     cam = CameraReader(cfg, dt)
     ticks = np.arange(0, n_steps, every)
     cam.reset(n_steps, ticks, batch, _rng_for(seed, batch))
     t = np.arange(n_steps + 1) * dt
     hist = np.repeat(bank_fn(t)[:, None], batch, axis=1)
-    cam.history = hist
+    if record:
+        cam.history = hist
     out_b, out_v, out_a = [], [], []
     ti = 0
     for k in range(n_steps + 1):
@@ -80,7 +82,7 @@ def test_per_run_latency_and_dropout_arrays():
     cam, t, bank, valid, age = _drive(cfg, lambda t: 0 * t, dt=0.002, n_steps=100_000, batch=batch, every=10)
     delay = (cam.plan.deliver_step - cam.plan.capture_step) * 0.002
     assert_allclose(delay[:, 5], lat, atol=1e-12)
-    frame_valid = cam.valid[:-1].mean(axis=0)
+    frame_valid = cam.frame_readings()[1].mean(axis=1)
     assert_allclose(frame_valid, 1.0 - drop, atol=0.02)  # 2500 frames: SE ≤ 1 %
     # a run of the batch with per-run values equals that run alone with floats
     solo = CameraReader(CameraConfig(frame_rate_hz=50.0, latency_s=0.05, dropout_prob=0.2), 0.002)
@@ -116,17 +118,35 @@ def test_exposure_lags_a_ramp_by_half_the_exposure():
     cam, *_ = _drive(cfg, lambda t: 0.5 * t, n_steps=5000, batch=2)
     cap_t = cam.capture_time[:-1, 0]
     later = cap_t > 0.05
-    assert_allclose(cam.values[:-1, 0][later], 0.5 * (cap_t[later] - 0.015), atol=1e-12)
+    assert_allclose(cam.frame_readings()[0][0][later], 0.5 * (cap_t[later] - 0.015), atol=1e-12)
 
 
 def test_classifier_reader_confidence_and_saturation():
     cfg = CameraConfig(frame_rate_hz=50.0, range_rad=math.radians(30.0), beyond_range="saturate",
                        classifier=ClassifierConfig(math.radians(5.0), 3.0, "best"))
     cam, *_ = _drive(cfg, lambda t: np.radians(40.0) * np.sin(t), n_steps=8000, batch=1)
-    vals = np.degrees(cam.values[:-1, 0])
+    vals, valid, conf = cam.frame_readings()
+    vals = np.degrees(vals)
     assert_allclose(vals, np.round(vals / 5.0) * 5.0, atol=1e-9)
-    assert vals.max() <= 30.0 + 1e-9 and cam.valid[:-1].all()
-    assert np.all((cam.confidence[:-1] > 0) & (cam.confidence[:-1] <= 1))
+    assert vals.max() <= 30.0 + 1e-9 and valid.all()
+    assert np.all((conf > 0) & (conf <= 1))
+
+
+def test_record_mode_equals_capture_mode():
+    # Readings computed at the ticks from the bank record must equal readings
+    # captured eagerly at each frame (the stages are pure functions).
+    cfg = CameraConfig(frame_rate_hz=30.0, latency_s=0.04, latency_jitter_s=0.01, jitter_s=0.003,
+                       noise_rad=0.01, wander_rad=0.01, outlier_prob=0.05, outlier_rad=0.3,
+                       quantization_rad=0.005, range_rad=0.5, dropout_prob=0.1,
+                       classifier=ClassifierConfig(0.02, 2.0, "weighted"), bursts=BurstConfig(0.1, 3.0))
+    fn = lambda t: 0.6 * np.sin(1.3 * t)  # noqa: E731  (goes beyond the range: invalid frames too)
+    a = _drive(cfg, fn, dt=0.01, n_steps=3000, batch=5, every=2, record=True)
+    b = _drive(cfg, fn, dt=0.01, n_steps=3000, batch=5, every=2, record=False)
+    for x, y in zip(a[2:], b[2:], strict=True):
+        assert_array_equal(x, y)
+    for x, y in zip(a[0].frame_readings(), b[0].frame_readings(), strict=True):
+        assert_array_equal(x, y)
+    assert 0.05 < 1 - a[0].frame_readings()[1].mean() < 0.6
 
 
 def test_sensor_section_keys_and_errors():

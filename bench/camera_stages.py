@@ -1,0 +1,66 @@
+"""Throughput of the stepping core with the camera reader's stages off and all on.
+
+Prints the best of several repeats of 1 run and 1000 runs of 60 s (base step
+10 ms, controller 50 Hz), baseline camera vs every stage switched on.
+Run: ``PYTHONPATH=. python bench/camera_stages.py``.
+"""
+
+from __future__ import annotations
+
+import math
+import time
+
+import numpy as np
+
+from controllers.pid import PIDConfig, PIDController
+from sensors.camera import BurstConfig, CameraConfig, ClassifierConfig
+from sensors.gyro import GyroConfig
+from sim import presets
+from sim.actuator import ActuatorSpec
+from sim.core import LoopSetup, simulate
+
+D = math.radians
+BASE = CameraConfig(frame_rate_hz=30, latency_s=0.05, noise_rad=D(0.3), quantization_rad=D(0.5),
+                    dropout_prob=0.02)
+ALL = CameraConfig(frame_rate_hz=30, latency_s=0.05, noise_rad=D(0.3), quantization_rad=D(0.5),
+                   dropout_prob=0.02, jitter_s=0.003, exposure_s=0.02, latency_jitter_s=0.01,
+                   wander_rad=D(0.3), wander_time_s=2.0, bias_rad=D(0.5), scale=1.01,
+                   outlier_prob=0.01, outlier_rad=D(15.0), beyond_range="saturate",
+                   range_rad=D(60.0), classifier=ClassifierConfig(D(1.0), 4.0, "weighted"),
+                   bursts=BurstConfig(0.05, 3.0))
+GYRO = GyroConfig(rate_hz=100.0, noise_rad_s=D(0.05), bias_rad_s=D(0.1), bias_drift_rad_s=D(0.02),
+                  bias_drift_time_s=100.0)
+
+
+def setup(camera: CameraConfig, gyro: GyroConfig | None) -> LoopSetup:
+    dt, n = 0.01, 6000
+    t = np.arange(n + 1) * dt
+    return LoopSetup(plant=presets.light_single(), dt=dt, n_steps=n, ctrl_every=2,
+                     actuator=ActuatorSpec(), camera=camera, gyro=gyro,
+                     bank_cmd=np.where(t >= 1, D(20), 0.0), x0=np.zeros(4))
+
+
+def best_time(s: LoopSetup, runs: int, repeats: int) -> float:
+    ctrl = PIDController(PIDConfig(kp=0.6, ki_per_s=0.1, kd_s=0.08))
+    best = math.inf
+    for _ in range(repeats):
+        t0 = time.perf_counter()
+        simulate(s, ctrl, seed=1, run_indices=range(runs))
+        best = min(best, time.perf_counter() - t0)
+    return best
+
+
+def main() -> None:
+    cases = {"baseline camera": setup(BASE, None), "all stages + gyro": setup(ALL, GYRO)}
+    res = {name: {} for name in cases}
+    for runs, reps in ((1, 5), (1000, 5)):
+        for _ in range(reps):  # interleave, so machine load hits both alike
+            for name, s in cases.items():
+                res[name][runs] = min(res[name].get(runs, math.inf), best_time(s, runs, 1))
+    for runs in (1, 1000):
+        b, a = res["baseline camera"][runs], res["all stages + gyro"][runs]
+        print(f"{runs:5d} runs x 60 s: baseline {b:.3f} s, all stages {a:.3f} s ({100 * (a / b - 1):+.0f} %)")
+
+
+if __name__ == "__main__":
+    main()
