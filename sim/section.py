@@ -204,6 +204,16 @@ class Section:
             raise self.error(key, f"must be a table, got {type(value).__name__}")
         return dict(value)
 
+    def tables(self, key: str) -> list[Section]:
+        """An array of tables ``[[path.key]]`` as Sections named ``path.key #i`` (1-based)."""
+        value = self._get(key, [])
+        if not isinstance(value, list) or not all(isinstance(v, Mapping) for v in value):
+            raise self.error(key, f"must be an array of tables, written [[{self.path}.{key}]]")
+        return [
+            Section(v, file=self.file, path=f"{self.path}.{key} #{i + 1}")
+            for i, v in enumerate(value)
+        ]
+
     def finish(self) -> None:
         """Reject keys that no getter asked for, suggesting the nearest one."""
         for key in self._table:
