@@ -43,8 +43,15 @@ def base_setup(camera: CameraConfig = CAMERA, disturbances=()) -> LoopSetup:
 
 
 def variants() -> dict[str, LoopSetup]:
-    """Named loop set-ups to time; later features add theirs here."""
-    return {"baseline": base_setup()}
+    """Named loop set-ups to time against the baseline."""
+    from sim.turbulence import INTENSITY_W20_MPS, DrydenTurbulence, dryden_params
+
+    plant = presets.light_single()
+    dryden = dryden_params(800 * 0.3048, INTENSITY_W20_MPS["moderate"], plant.airspeed_mps, plant.span_m)
+    return {
+        "baseline": base_setup(),
+        "moderate turbulence": base_setup(disturbances=(DrydenTurbulence(dryden),)),
+    }
 
 
 def time_batch(setup: LoopSetup, runs: int, repeats: int = 3) -> float:

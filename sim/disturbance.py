@@ -102,6 +102,8 @@ class DisturbanceSet:
             src.reset(dt, rng_for(src.component))
 
     def block(self, k0: int, n: int, batch: int) -> np.ndarray:
+        if len(self.sources) == 1:
+            return self.sources[0].block(k0, n)
         out = np.zeros((n, batch, N_CHANNELS))
         for src in self.sources:
             out += src.block(k0, n)
