@@ -14,18 +14,28 @@ Pieces taken from the scenario
 * **Actuator**: the first-order servo lag; position and rate limits are
   left out (a linear analysis assumes they do not bind).
 * **Camera effective delay** (:class:`CameraDelay`): processing latency
-  + mean of the random extra latency + mean frame hold (half a frame period:
-  a zero-order hold at period ``T`` adds about ``T/2`` of delay,
-  REFERENCES.md "Loop margins") + exposure mid-point (half the exposure time).
-  Capture-time jitter has zero mean and is left out.
+  + mean of the random extra latency + mean frame hold + exposure mid-point
+  (half the exposure time). The mean frame hold is the mean age, beyond the
+  latency, of the reading the controller uses at its ticks, computed from the
+  scenario's frame and tick schedule on the base grid
+  (:func:`schedule_stats`): half a frame period when frames and ticks are
+  not locked (a zero-order hold at period ``T`` adds about ``T/2`` of delay,
+  REFERENCES.md "Loop margins"), less when they are (e.g. 25 Hz frames
+  arriving on 50 Hz ticks: 10 ms, not 20 ms, because the controller's own
+  hold then adds nothing the frame hold has not). Capture-time jitter has
+  zero mean and is left out.
 * **Controller**: the PID's gains, derivative filter and derivative source;
   its sample hold (half the controller period) is carried by
-  ``LoopParts.controller_dt_s``. A derivative taken from the camera is a
-  backward difference of successive new readings, which lags the
-  proportional term by half the interval between them (half of the longer of
-  the frame and controller periods): ``LoopParts.derivative_delay_s``. The
-  camera's scale factor multiplies every gain acting on the camera reading
-  (it scales the loop gain on that path).
+  ``LoopParts.controller_dt_s``. The camera's scale factor multiplies every
+  gain acting on the camera reading (it scales the loop gain on that path).
+  A derivative taken from the camera is a backward difference of the two
+  newest readings, centred half their capture interval earlier, and its
+  filter (:mod:`controllers.pid`) advances only when a new reading arrives.
+  So the D path has its own delay (mean over new-reading ticks of reading age
+  + half the capture interval; ``LoopParts.derivative_delay_s`` carries the
+  excess over the P path) and, when frames are slower than ticks, a lower
+  effective filter corner ``f·T_tick/T_new`` (the discrete pole per update,
+  ``exp(−2π f T_tick)``, applied once per new reading every ``T_new``).
 * **Gyro**: effective delay of half its sample period.
 
 Only PID controllers have a transfer function here; any other controller
@@ -36,12 +46,21 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
+import numpy as np
+
 from sim.errors import ScenarioError
 from sim.scenario import Scenario
 
 from .linear_loop import LoopParts
 
-__all__ = ["CameraDelay", "camera_delay", "has_linear_model", "loop_parts_from_scenario"]
+__all__ = [
+    "CameraDelay",
+    "ScheduleStats",
+    "camera_delay",
+    "schedule_stats",
+    "has_linear_model",
+    "loop_parts_from_scenario",
+]
 
 
 @dataclass(frozen=True)
@@ -55,7 +74,9 @@ class CameraDelay:
     latency_jitter_mean_s : s
         Mean of the random extra latency per frame.
     frame_hold_s : s
-        Mean frame-hold delay, half a frame period.
+        Mean frame-hold delay: mean age of the reading used at the controller
+        ticks, beyond the latency (half a frame period when frames and ticks
+        are not locked).
     exposure_mid_s : s
         Exposure mid-point, half the exposure time.
     """
@@ -80,6 +101,77 @@ def _scalar(value: object, name: str, file: str) -> float:
         ) from None
 
 
+@dataclass(frozen=True)
+class ScheduleStats:
+    """Reading ages on the deterministic frame and controller-tick schedule (s).
+
+    Attributes
+    ----------
+    mean_age_s : s
+        Mean age (since capture) of the newest reading at every tick.
+    new_reading_age_s : s
+        Mean age at the ticks that bring a new reading.
+    new_reading_gap_s : s
+        Mean capture interval between a new reading and the one before it.
+    new_reading_interval_s : s
+        Mean time between ticks that bring a new reading.
+    tick_s : s
+        Controller period.
+    """
+
+    mean_age_s: float
+    new_reading_age_s: float
+    new_reading_gap_s: float
+    new_reading_interval_s: float
+    tick_s: float
+
+
+def schedule_stats(sc: Scenario, *, frames: int = 600) -> ScheduleStats:
+    """Reading ages from the scenario's frame and tick schedule on its base grid.
+
+    Frames are captured at ``round(f·T/dt)`` base steps and delivered
+    ``round(latency/dt)`` steps later (latency + mean random extra latency);
+    the controller ticks every ``round(1/(rate·dt))`` steps and uses the newest
+    delivered reading — the same rounding as the stepping core. The first
+    tenth of the horizon is skipped.
+
+    Parameters
+    ----------
+    sc : Scenario
+    frames : int
+        Frames in the horizon.
+
+    Returns
+    -------
+    ScheduleStats
+    """
+    cam = sc.camera
+    dt = sc.run.base_step_s
+    period = 1.0 / float(cam.frame_rate_hz)
+    jitter = float(getattr(cam, "latency_jitter_s", 0.0) or 0.0)
+    latency = _scalar(cam.latency_s, "latency_s", sc.path) + jitter
+    every = int(round(1.0 / (sc.controller.rate_hz * dt)))
+    capture = np.rint(np.arange(frames) * period / dt).astype(np.int64)
+    arrive = capture + int(round(latency / dt))
+    ticks = np.arange(int(arrive[0]), int(arrive[-1]), every)
+    newest = np.searchsorted(arrive, ticks, side="right") - 1
+    keep = slice(ticks.size // 10, None)
+    ticks, newest = ticks[keep], newest[keep]
+    age = (ticks - capture[newest]) * dt
+    is_new = np.concatenate([[False], np.diff(newest) > 0])
+    idx = np.nonzero(is_new)[0]
+    prev = newest[idx - 1]
+    gap = (capture[newest[idx]] - capture[prev]) * dt
+    interval = np.diff(ticks[idx]) * dt
+    return ScheduleStats(
+        mean_age_s=float(age.mean()),
+        new_reading_age_s=float(age[idx].mean()),
+        new_reading_gap_s=float(gap.mean()),
+        new_reading_interval_s=float(interval.mean()) if interval.size else every * dt,
+        tick_s=every * dt,
+    )
+
+
 def camera_delay(sc: Scenario) -> CameraDelay:
     """Effective delay of the scenario's camera reader.
 
@@ -92,10 +184,12 @@ def camera_delay(sc: Scenario) -> CameraDelay:
     CameraDelay
     """
     cam = sc.camera
+    latency = _scalar(cam.latency_s, "latency_s", sc.path)
+    jitter = float(getattr(cam, "latency_jitter_s", 0.0) or 0.0)
     return CameraDelay(
-        latency_s=_scalar(cam.latency_s, "latency_s", sc.path),
-        latency_jitter_mean_s=float(getattr(cam, "latency_jitter_s", 0.0) or 0.0),
-        frame_hold_s=0.5 / float(cam.frame_rate_hz),
+        latency_s=latency,
+        latency_jitter_mean_s=jitter,
+        frame_hold_s=schedule_stats(sc).mean_age_s - latency - jitter,
         exposure_mid_s=0.5 * float(getattr(cam, "exposure_s", 0.0) or 0.0),
     )
 
@@ -130,19 +224,27 @@ def loop_parts_from_scenario(sc: Scenario) -> LoopParts:
     pid = sc.controller.pid
     scale = float(getattr(sc.camera, "scale", 1.0))
     gyro_rate = pid.derivative_source == "gyro" and sc.gyro is not None
-    kd_scale = 1.0 if gyro_rate else scale
+    cam = camera_delay(sc)
+    extra = 0.0
+    filter_hz = pid.derivative_filter_hz
+    if not gyro_rate and pid.kd_s != 0.0:
+        st = schedule_stats(sc)
+        # D path: reading age at new-reading ticks + half the difference interval, versus
+        # the P path's mean age + half a tick (LoopParts adds the tick hold to both).
+        d_path = st.new_reading_age_s + 0.5 * st.new_reading_gap_s
+        extra = max(0.0, d_path - st.mean_age_s - 0.5 * st.tick_s)
+        filter_hz = pid.derivative_filter_hz * st.tick_s / max(st.new_reading_interval_s, st.tick_s)
     return LoopParts.from_plant(
         sc.plant,
         actuator_tau_s=sc.actuator.time_constant_s,
-        camera_delay_s=camera_delay(sc).total_s,
+        camera_delay_s=cam.total_s,
         gyro_delay_s=0.5 / sc.gyro.rate_hz if sc.gyro is not None else 0.0,
         controller_dt_s=1.0 / sc.controller.rate_hz,
         kp=pid.kp * scale,
         ki_per_s=pid.ki_per_s * scale,
-        kd_s=pid.kd_s * kd_scale,
-        derivative_filter_hz=pid.derivative_filter_hz,
+        kd_s=pid.kd_s * (1.0 if gyro_rate else scale),
+        derivative_filter_hz=filter_hz,
         derivative_source="gyro" if gyro_rate else "measurement",
-        derivative_delay_s=0.0 if gyro_rate else 0.5 * max(
-            1.0 / float(sc.camera.frame_rate_hz), 1.0 / sc.controller.rate_hz),
+        derivative_delay_s=extra,
     )
 

@@ -71,7 +71,7 @@ def plot_margins(parts: LoopParts, path: str | os.PathLike[str], omega: Any = No
         ax_ph.axvline(wc, color="C2", ls="--", lw=0.8)
         ax_ph.annotate(f"PM {m.phase_margin_deg:.1f}° @ {wc:.3g} rad/s\n"
                        f"delay margin {m.delay_margin_s * 1e3:.0f} ms",
-                       (wc, ph_c), textcoords="offset points", xytext=(8, 8), color="C2")
+                       (wc, ph_c), textcoords="offset points", xytext=(10, -40), color="C2")
     if math.isfinite(m.phase_crossover_rad_s):
         wp = m.phase_crossover_rad_s
         ax_mag.axvline(wp, color="C3", ls="--", lw=0.8)

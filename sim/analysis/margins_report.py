@@ -25,6 +25,8 @@ import time
 from dataclasses import dataclass, replace
 from pathlib import Path
 
+import numpy as np
+
 from controllers.base import Controller
 from sim.report.table import Table, fmt_number
 from sim.scenario import Scenario
@@ -46,6 +48,7 @@ from .linear_loop import (
     LoopMargins,
     LoopParts,
     margins,
+    open_loop_response,
 )
 from .loop_from_scenario import CameraDelay, camera_delay, has_linear_model, loop_parts_from_scenario
 
@@ -317,12 +320,31 @@ def _margin_table(rep: MarginsReport) -> Table:
             f"{e.runs_simulated} runs of {e.duration_s:.3g} s at base step {e.base_step_s * 1e3:.3g} ms "
             f"(delay resolution){loss_txt}; ± is half the final bracket."
         )
+    if rep.parts is not None:
+        near = _near_tangent_crossovers(rep.parts)
+        if near:
+            t.notes.append(
+                "Caution: |L| has a peak or dip within 0.5 dB of 0 dB near "
+                + ", ".join(f"{w:.3g} rad/s ({db:+.2f} dB)" for w, db in near)
+                + "; a crossover (and a delay margin) set there is ill-conditioned: a model error of a "
+                "fraction of a dB adds or removes it, so analytic and empirical may differ."
+            )
     if a is not None and e is not None:
         t.notes.append(
-            "Remaining gaps: the analytic model treats the frame and controller holds as T/2 delays "
-            "(no sampling or aliasing), ignores saturation and the base-step grid."
+            "Remaining gaps: the analytic model replaces frame and tick sampling by mean delays "
+            "(reading age + half a tick; no aliasing or sinc gain loss) and ignores saturation."
         )
     return t
+
+
+def _near_tangent_crossovers(parts: LoopParts) -> list[tuple[float, float]]:
+    """Local extrema of |L| (dB) within ±0.5 dB of 0 dB: (ω rad/s, dB)."""
+    w = np.logspace(-2.0, 2.0, 4001)
+    db = 20.0 * np.log10(np.abs(open_loop_response(parts, w)))
+    inner = db[1:-1]
+    ext = ((inner > db[:-2]) & (inner > db[2:])) | ((inner < db[:-2]) & (inner < db[2:]))
+    idx = np.nonzero(ext & (np.abs(inner) < 0.5))[0] + 1
+    return [(float(w[i]), float(db[i])) for i in idx]
 
 
 def _delay_table(rep: MarginsReport) -> Table:
@@ -333,13 +355,13 @@ def _delay_table(rep: MarginsReport) -> Table:
     parts = [
         ("processing latency", d.latency_s),
         ("mean random extra latency", d.latency_jitter_mean_s),
-        ("mean frame hold (half a frame)", d.frame_hold_s),
+        ("mean frame hold at the controller ticks", d.frame_hold_s),
         ("exposure mid-point", d.exposure_mid_s),
         ("camera total", d.total_s),
         ("controller sample hold (half a tick)", 0.5 / sc.controller.rate_hz),
     ]
     if rep.parts is not None and rep.parts.derivative_delay_s > 0 and rep.parts.kd_s != 0:
-        parts.append(("derivative backward difference (extra, D term only)", rep.parts.derivative_delay_s))
+        parts.append(("D term: extra delay of the frame difference", rep.parts.derivative_delay_s))
     for name, v in parts:
         t.add(name, fmt_number(v * 1e3))
         t.records.append({"part": name, "delay_s": v})
