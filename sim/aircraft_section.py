@@ -80,10 +80,13 @@ def parse_aircraft(sec: Section) -> LinearPlant:
             not isinstance(names, list)
             or len(names) != n
             or not all(isinstance(x, str) for x in names)
+            or len(set(names)) != n
             or "phi" not in names
             or "p" not in names
         ):
-            raise sec.error("states", f"must list {n} state names including \"p\" (roll rate) and \"phi\" (bank)")
+            raise sec.error(
+                "states", f"must list {n} distinct state names including \"p\" (roll rate) and \"phi\" (bank)"
+            )
         bd = sec.array("b_disturbance", None, shape=(n, 4))
         plant = presets.from_matrices(
             a, b, tuple(names),

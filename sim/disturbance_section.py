@@ -107,6 +107,10 @@ def parse_disturbance(
     if turb is not None:
         if not has_gust_inputs:
             raise section.error("turbulence", _NO_GUST_PATH)
+        if span_m is None:  # the Dryden roll- and yaw-rate filters need it
+            raise section.error(
+                "turbulence", "needs the wing span; allowed: give span_m in [aircraft] (0.1 ≤ span_m ≤ 100)"
+            )
         sources.append(DrydenTurbulence(_parse_turbulence(turb, airspeed_mps, span_m)))
         turb.finish()
 

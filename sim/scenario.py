@@ -140,7 +140,11 @@ def parse_scenario(doc: dict, *, file: str = "<scenario>", sha256: str = "") -> 
         if key not in SECTIONS:
             top.known(SECTIONS)
             top.finish()  # raises with a suggestion
-    sec = lambda name, req=False: top.sub(name, required=req)  # noqa: E731
+
+    def sec(name: str, req: bool = False) -> Section | None:
+        # checked by top.sub, then named "[name]" (not "[top level.name]") in messages
+        return None if top.sub(name, required=req) is None else Section(doc[name], file=file, path=name)
+
 
     about = sec("scenario")
     title, story = Path(file).stem, ""
@@ -190,7 +194,8 @@ def _parse_run(s: Section | None) -> RunSpec:
         runs=s.integer("runs", 1, lo=1, hi=100_000),
     )
     if run.n_steps < 2:
-        raise s.error("duration_s", f"= {run.duration_s:g} is shorter than two base steps")
+        raise s.error("duration_s", f"= {run.duration_s:g} is shorter than two base steps; "
+                      f"allowed: duration_s ≥ {2 * run.base_step_s:g} (2 × base_step_s)")
     s.finish()
     return run
 
@@ -236,7 +241,7 @@ def _parse_command(s: Section | None, run: RunSpec, bank0: float) -> CommandSpec
         if times.size != banks.size or times.size == 0:
             raise s.error("banks_deg", f"has {banks.size} values; allowed: one per entry of times_s ({times.size})")
         if np.any(np.diff(times) <= 0):
-            raise s.error("times_s", "must be strictly increasing")
+            raise s.error("times_s", "must be strictly increasing; allowed: each time after the one before")
         if times[0] > 0:
             times = np.concatenate([[0.0], times])
             banks = np.concatenate([[math.degrees(bank0)], banks])

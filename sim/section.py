@@ -59,6 +59,7 @@ class Section:
     # ------------------------------------------------------------------ helpers
     def where(self, key: str) -> str:
         """``file: [section] key`` prefix for messages."""
+        key = key if key.isprintable() else repr(key)  # a quoted TOML key may hold "\n"
         return f"{self.file}: [{self.path}] {key}"
 
     def error(self, key: str, message: str) -> ScenarioError:
@@ -100,10 +101,13 @@ class Section:
         value = self._get(key, default)
         if value is None:
             return value
-        if isinstance(value, bool) or not isinstance(value, (int, float)):
-            raise self.error(key, f"must be a number, got {type(value).__name__} {value!r}")
-        value = float(value)
         rng = self._range_text(key, lo, hi, lo_open, hi_open)
+        if isinstance(value, bool) or not isinstance(value, (int, float)):
+            raise self.error(key, f"must be a number, got {type(value).__name__} {value!r}; allowed: {rng}")
+        try:
+            value = float(value)
+        except OverflowError:  # TOML integers have no size limit
+            raise self.error(key, f"is too large a number; allowed: {rng}") from None
         if not math.isfinite(value):
             raise self.error(key, f"must be a finite number, got {value}; allowed: {rng}")
         bad = (
@@ -121,12 +125,12 @@ class Section:
         value = self._get(key, default)
         if value is None:
             return value
+        rng = self._range_text(key, lo, hi, False, False)
         if isinstance(value, bool) or not isinstance(value, int):
             if isinstance(value, float) and value.is_integer():
                 value = int(value)
             else:
-                raise self.error(key, f"must be a whole number, got {value!r}")
-        rng = self._range_text(key, lo, hi, False, False)
+                raise self.error(key, f"must be a whole number, got {value!r}; allowed: {rng}")
         if (lo is not None and value < lo) or (hi is not None and value > hi):
             raise self.error(key, f"= {value} is out of range; allowed: {rng}")
         return int(value)
@@ -144,7 +148,8 @@ class Section:
         if value is None:
             return value
         if not isinstance(value, str):
-            raise self.error(key, f"must be a string, got {value!r}")
+            allowed = f"; allowed: {', '.join(map(repr, choices))}" if choices is not None else ""
+            raise self.error(key, f"must be a string, got {value!r}{allowed}")
         if choices is not None and value not in choices:
             hint = difflib.get_close_matches(value, list(choices), n=1)
             did = f" (did you mean {hint[0]!r}?)" if hint else ""
@@ -168,12 +173,13 @@ class Section:
             return value
         try:
             arr = np.asarray(value, dtype=float)
-        except (TypeError, ValueError):
+        except (TypeError, ValueError, OverflowError):
             raise self.error(key, "must be a list of numbers (rows of equal length)") from None
         if arr.dtype == object or arr.ndim == 0:
             raise self.error(key, "must be a list of numbers (rows of equal length)")
-        if any(isinstance(v, bool) for v in np.asarray(value, dtype=object).ravel()):
-            raise self.error(key, "must hold numbers, not true/false")
+        odd = [v for v in np.asarray(value, dtype=object).ravel() if isinstance(v, (bool, str))]
+        if odd:  # numpy would quietly turn "1.5" into 1.5 and true into 1.0
+            raise self.error(key, f"must hold numbers, got {odd[0]!r}")
         if shape is not None:
             ok = arr.ndim == len(shape) and all(
                 want is None or got == want for got, want in zip(arr.shape, shape, strict=True)

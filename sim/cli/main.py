@@ -45,6 +45,8 @@ def build_parser() -> argparse.ArgumentParser:
 def main(argv: list[str] | None = None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
+    # what the manifest records: this call's arguments, also when main() is called in-process
+    args.command_line = ["rollrig", *(sys.argv[1:] if argv is None else argv)]
     try:
         return int(args.func(args) or 0)
     except UserInputError as exc:

@@ -46,7 +46,7 @@ def run(args: argparse.Namespace) -> int:
     sc = load_scenario(args.scenario)
     changes = {}
     if args.runs is not None:
-        if args.runs < 1:
+        if not 1 <= args.runs <= 100_000:
             raise UserInputError(f"--runs {args.runs}: allowed: 1 ≤ runs ≤ 100000")
         changes["runs"] = args.runs
     if args.seed is not None:
@@ -84,7 +84,8 @@ def run(args: argparse.Namespace) -> int:
         from sim.report.run_files import write_run_files
 
         with output_folder(out_dir, force=args.force) as tmp:
-            write_run_files(tmp, outcome, run_indices=runs)
+            write_run_files(tmp, outcome, run_indices=runs,
+                            command_line=getattr(args, "command_line", None))
             (tmp / "metrics.md").write_text(render(tables, "md"))
             if args.plot:
                 _plots(tmp, outcome)

@@ -45,6 +45,11 @@ def check_out_dir(path: Path, force: bool) -> None:
         raise UserInputError(f"{path}: output folder exists; allowed: a new folder, or --force to replace it")
     if path.exists() and not path.is_dir():
         raise UserInputError(f"{path}: exists and is not a folder; allowed: a folder path")
+    parent = path.parent
+    while not parent.exists() and parent != parent.parent:  # first existing ancestor
+        parent = parent.parent
+    if not parent.is_dir():  # --out some_file/sub would fail later with an OSError
+        raise UserInputError(f"{parent}: exists and is not a folder; allowed: an output path inside a folder")
 
 
 @contextmanager
@@ -95,14 +100,14 @@ def write_json(path: Path, data: Any) -> None:
 
 
 def manifest(*, scenario_path: str, scenario_sha256: str, seed: int, runs: list[int] | range,
-             extra: dict | None = None) -> dict:
+             extra: dict | None = None, command_line: list[str] | None = None) -> dict:
     """Provenance of an output folder."""
     runs = list(runs)
     data = {
         "tool": "rollrig",
         "version": __version__,
         "created_utc": time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime()),
-        "command_line": sys.argv,
+        "command_line": list(sys.argv if command_line is None else command_line),
         "scenario": scenario_path,
         "scenario_sha256": scenario_sha256,
         "seed": seed,

@@ -18,12 +18,17 @@ MAX_RUNS_IN_NPZ = 100
 _DEG = 180.0 / np.pi
 
 
-def write_run_files(folder: Path, out: RunOutcome, *, run_indices) -> list[str]:
-    """Write manifest, metrics and traces into ``folder``; return file names."""
+def write_run_files(folder: Path, out: RunOutcome, *, run_indices,
+                    command_line: list[str] | None = None) -> list[str]:
+    """Write manifest, metrics and traces into ``folder``; return file names.
+
+    ``command_line`` is recorded in the manifest (default: ``sys.argv``).
+    """
     sc, tr = out.scenario, out.trace
     written = []
     write_json(folder / "manifest.json", manifest(
         scenario_path=sc.path, scenario_sha256=sc.sha256, seed=sc.run.seed, runs=run_indices,
+        command_line=command_line,
         extra={"title": sc.title, "duration_s": sc.run.duration_s, "base_step_s": sc.run.base_step_s},
     ))
     written.append("manifest.json")
