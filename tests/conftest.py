@@ -31,6 +31,8 @@ __all__ = [
     "to_toml",
     "minimal_doc",
     "rich_docs",
+    "matrices_aircraft",
+    "derivatives_aircraft",
     "cli",
 ]
 
@@ -146,13 +148,9 @@ def minimal_doc() -> dict:
     return tomllib.loads(MINIMAL_SCENARIO)
 
 
-def rich_docs() -> list[dict]:
-    """Valid documents that between them use every section and model kind."""
-    docs = [tomllib.loads(p.read_text()) for p in BUNDLED]
-    base = minimal_doc()
-
-    matrices = copy.deepcopy(base)
-    matrices["aircraft"] = {
+def matrices_aircraft() -> dict:
+    """A valid ``[aircraft]`` table of the user-matrix kind (4 lateral states)."""
+    return {
         "model": "matrices",
         "states": ["beta", "p", "r", "phi"],
         "a": [[-0.25, 0.0, -1.0, 0.18], [-16.0, -8.4, 2.2, 0.0],
@@ -163,19 +161,11 @@ def rich_docs() -> list[dict]:
         "airspeed_mps": 50.0,
         "span_m": 10.0,
     }
-    matrices["sensor"]["gyro"] = {"rate_hz": 100.0, "noise_deg_s": 0.1, "bias_deg_s": 0.2}
-    matrices["controller"]["derivative"] = "gyro"
-    matrices["disturbance"] = {
-        "roll_moment_deg_s2": 1.0,
-        "roll_moment_step_deg_s2": 2.0,
-        "roll_moment_step_time_s": 1.0,
-        "turbulence": {"intensity": "light", "altitude_ft": 500.0},
-        "gust": [{"onset_s": 0.5, "length_m": 30.0, "channel": "side", "amplitude_mps": 3.0}],
-    }
-    docs.append(matrices)
 
-    derivs = copy.deepcopy(base)
-    derivs["aircraft"] = {
+
+def derivatives_aircraft() -> dict:
+    """A valid ``[aircraft]`` table of the user-derivative kind."""
+    return {
         "model": "derivatives",
         "airspeed_mps": 53.6,
         "span_m": 11.0,
@@ -189,6 +179,28 @@ def rich_docs() -> list[dict]:
         "l_da_per_s2": 28.64,
         "n_da_per_s2": -0.22,
     }
+
+
+def rich_docs() -> list[dict]:
+    """Valid documents that between them use every section and model kind."""
+    docs = [tomllib.loads(p.read_text()) for p in BUNDLED]
+    base = minimal_doc()
+
+    matrices = copy.deepcopy(base)
+    matrices["aircraft"] = matrices_aircraft()
+    matrices["sensor"]["gyro"] = {"rate_hz": 100.0, "noise_deg_s": 0.1, "bias_deg_s": 0.2}
+    matrices["controller"]["derivative"] = "gyro"
+    matrices["disturbance"] = {
+        "roll_moment_deg_s2": 1.0,
+        "roll_moment_step_deg_s2": 2.0,
+        "roll_moment_step_time_s": 1.0,
+        "turbulence": {"intensity": "light", "altitude_ft": 500.0},
+        "gust": [{"onset_s": 0.5, "length_m": 30.0, "channel": "side", "amplitude_mps": 3.0}],
+    }
+    docs.append(matrices)
+
+    derivs = copy.deepcopy(base)
+    derivs["aircraft"] = derivatives_aircraft()
     derivs["initial"] = {"bank_deg": 5.0, "roll_rate_deg_s": 1.0, "sideslip_deg": 0.5}
     derivs["actuator"] = {"time_constant_s": 0.05, "limit_deg": 20.0, "rate_limit_deg_s": 80.0}
     derivs["command"] = {"profile": "sequence", "times_s": [0.0, 1.0], "banks_deg": [0.0, 10.0]}

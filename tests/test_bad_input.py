@@ -10,7 +10,6 @@ are never left half written.
 
 from __future__ import annotations
 
-import copy
 import datetime
 import sys
 import tomllib
@@ -18,7 +17,14 @@ from collections.abc import Callable
 from pathlib import Path
 
 import pytest
-from conftest import MINIMAL_SCENARIO, minimal_doc, rich_docs, to_toml
+from conftest import (
+    MINIMAL_SCENARIO,
+    derivatives_aircraft,
+    matrices_aircraft,
+    minimal_doc,
+    rich_docs,
+    to_toml,
+)
 
 from sim.errors import ScenarioError, UserInputError
 
@@ -83,7 +89,7 @@ def _rename(section: str, old: str, new: str) -> Callable[[dict], None]:
 
 def _matrices(**changes) -> Callable[[dict], None]:
     def f(doc: dict) -> None:
-        doc["aircraft"] = copy.deepcopy(rich_docs()[3]["aircraft"])
+        doc["aircraft"] = matrices_aircraft()
         doc["aircraft"].pop("b_disturbance")
         for k, v in changes.items():
             if v is None:
@@ -230,7 +236,7 @@ CASES: list[tuple[str, Callable[[dict], None], tuple[str, ...]]] = [
      _matrices(a=UNSTABLE_A, b=[[10.0], [0.0]], states=["p", "phi"], span_m=None),
      ("[aircraft] a", "unstable", "0.5", "allowed: real parts ≤ 0.1 1/s", "allow_unstable = true")),
     ("derivatives missing one", lambda d: d.__setitem__(
-        "aircraft", {k: v for k, v in rich_docs()[4]["aircraft"].items() if k != "l_p_per_s"}),
+        "aircraft", {k: v for k, v in derivatives_aircraft().items() if k != "l_p_per_s"}),
      ("[aircraft] l_p_per_s", "required")),
     ("turbulence without gust inputs", _then(
         _matrices(), _set("disturbance", "turbulence", {"intensity": "light", "altitude_ft": 500})),
