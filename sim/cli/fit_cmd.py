@@ -1,0 +1,131 @@
+"""``rollrig fit-sensor LOG.csv``: fit the camera-reader model to a recorded log."""
+
+from __future__ import annotations
+
+import argparse
+import hashlib
+import math
+import sys
+from pathlib import Path
+
+__all__ = ["add_parser", "run", "fit_tables", "plot_fit"]
+
+_ROWS = (  # key, label, shown in degrees
+    ("frame_rate_hz", "frame rate", False),
+    ("jitter_s", "timing jitter", False),
+    ("latency_s", "latency (effective)", False),
+    ("bias_rad", "bias", True),
+    ("scale", "scale", False),
+    ("quantization_rad", "quantisation step", True),
+    ("noise_rad", "white noise std", True),
+    ("wander_rad", "wandering error std", True),
+    ("wander_time_s", "wander correlation time", False),
+    ("outlier_prob", "outlier rate", False),
+    ("outlier_rad", "outlier size", True),
+    ("loss_rate", "loss rate", False),
+    ("mean_burst_frames", "mean burst length", False),
+)
+
+
+def add_parser(sub) -> None:
+    p = sub.add_parser("fit-sensor", help="fit the camera model to a recorded sensor log",
+                       description="Estimate latency, frame timing, bias, scale, quantisation, noise, "
+                                   "wander, outliers and losses from a CSV log; write a [sensor] section.")
+    p.add_argument("log", metavar="LOG.csv", help="CSV log with a header row")
+    p.add_argument("--time-col", default="t_s", help="time column, seconds (default t_s)")
+    p.add_argument("--reference-col", default="reference_deg",
+                   help="trusted bank, degrees (default reference_deg)")
+    p.add_argument("--reading-col", default="reading_deg",
+                   help="camera reading, degrees (default reading_deg)")
+    p.add_argument("--valid-col", default=None,
+                   help="validity column, 1/0 (default: 'valid' if present, else every reading is valid)")
+    p.add_argument("--max-latency", type=float, default=2.0, metavar="S", help="longest latency searched, s")
+    p.add_argument("--out", type=Path, metavar="DIR",
+                   help="output folder (default rollrig-runs/fit-<log>-<time>)")
+    p.add_argument("--force", action="store_true", help="replace an existing output folder")
+    p.add_argument("--no-files", action="store_true", help="print the table only, write no folder")
+    p.add_argument("--format", choices=("table", "csv", "json", "md"), default="table",
+                   help="how to print the estimates (default: table)")
+    p.set_defaults(func=run)
+
+
+def fit_tables(fit, source: str):
+    from sim.report.table import Table, fmt_number
+
+    t = Table(title=f"Sensor fit: {source}", columns=["quantity", "estimate", "± 1 SE", "unit", "how"])
+    recs = []
+    for key, label, in_deg in _ROWS:
+        e = fit.estimates[key]
+        v, se, unit = e.value, e.se, e.unit
+        if in_deg:
+            v, se, unit = math.degrees(v), math.degrees(se), "deg"
+        t.add(label, fmt_number(v, 4), fmt_number(se, 2), unit, e.note)
+        recs.append({"quantity": key.replace("_rad", "_deg") if in_deg else key, "estimate": v,
+                     "se": se, "unit": unit, "how": e.note})
+    t.records = recs
+    t.notes = [f"{fit.n_rows} rows, {fit.n_frames} frames; SE = one standard error (asymptotic formulas)",
+               "losses " + ("come in bursts: sensor.bursts table written" if fit.bursty
+                           else "look independent: dropout_prob written")]
+    return [t]
+
+
+def plot_fit(fit, path: Path, title: str) -> None:
+    from sim.report.plots import pyplot
+
+    plt = pyplot()
+    fig, (a, b) = plt.subplots(2, 1, figsize=(10, 6), sharex=True)
+    deg = 180.0 / math.pi
+    ok = ~fit.outlier & ~(fit.predicted != fit.predicted)
+    a.plot(fit.t, fit.reading * deg, ".", ms=2, label="reading")
+    a.plot(fit.t, fit.predicted * deg, "-", lw=0.8, label="fitted model of the reference (shifted, scaled)")
+    a.plot(fit.t[fit.outlier], fit.reading[fit.outlier] * deg, "rx", ms=4, label="outliers")
+    a.set_ylabel("bank, deg")
+    a.legend(loc="upper right", fontsize=8)
+    a.set_title(title)
+    b.plot(fit.t[ok], (fit.reading - fit.predicted)[ok] * deg, ".", ms=2)
+    b.set_ylabel("residual, deg")
+    b.set_xlabel("time, s")
+    fig.tight_layout()
+    fig.savefig(path, dpi=110)
+    plt.close(fig)
+
+
+def run(args: argparse.Namespace) -> int:
+    from sensors.fit import LogProblem, fit_sensor, sensor_toml
+    from sim.errors import LogFileError, UserInputError
+    from sim.report.outdir import check_out_dir, default_out_dir, manifest, output_folder, write_json
+    from sim.report.table import render
+    from sim.sensor_log import read_log
+
+    if not (0.0 < args.max_latency <= 10.0):
+        raise UserInputError(f"--max-latency {args.max_latency}: allowed: 0 < S ≤ 10")
+    log = read_log(args.log, time_col=args.time_col, reference_col=args.reference_col,
+                   reading_col=args.reading_col, valid_col=args.valid_col or "valid",
+                   valid_required=args.valid_col is not None)
+    out_dir = None
+    if not args.no_files:
+        out_dir = args.out or default_out_dir("fit-" + Path(args.log).stem)
+        check_out_dir(out_dir, args.force)
+    try:
+        fit = fit_sensor(log.t, log.reference, log.reading, log.valid, max_latency_s=args.max_latency)
+    except LogProblem as exc:
+        raise LogFileError(f"{args.log}: {exc}") from None
+    tables = fit_tables(fit, args.log)
+    text = render(tables, args.format)
+    if text is not None:
+        sys.stdout.write(text)
+    snippet = sensor_toml(fit, Path(args.log).name)
+    if args.format == "table":
+        print("\n" + snippet)
+    if out_dir is not None:
+        raw = Path(args.log).read_bytes()
+        with output_folder(out_dir, force=args.force) as tmp:
+            (tmp / "sensor.toml").write_text(snippet)
+            (tmp / "estimates.md").write_text(render(tables, "md"))
+            (tmp / "estimates.json").write_text(render(tables, "json"))
+            plot_fit(fit, tmp / "fit.png", f"Sensor fit: {Path(args.log).name}")
+            write_json(tmp / "manifest.json", manifest(
+                scenario_path=str(args.log), scenario_sha256=hashlib.sha256(raw).hexdigest(),
+                seed=None, runs=[], extra={"command": "fit-sensor", "input": "sensor log"}))
+        print(f"wrote {out_dir}/", file=sys.stderr if args.format != "table" else sys.stdout)
+    return 0

@@ -1,0 +1,136 @@
+"""Round trip: logs made by our own camera model are fitted back to its parameters.
+
+Each log is one run of a closed loop flying bank changes, made with
+:func:`sim.sensor_log.make_log`; the fit must recover the configuration
+within the issue's tolerances: latency within half a base step, bias within
+0.1°, scale within 1 %, noise std within 10 %, loss rate within 20 %
+relative, mean burst length within 25 %. Seeds are fixed; the stated
+standard errors show the margins (noted per configuration).
+"""
+
+from __future__ import annotations
+
+import copy
+import math
+
+import numpy as np
+import pytest
+from numpy.testing import assert_allclose
+
+from sensors.fit import LogProblem, fit_sensor, sensor_toml
+from sim.scenario import parse_scenario
+from sim.section import Section
+from sim.sensor_log import make_log, read_log, write_log
+from sim.sensor_section import parse_sensor
+
+_BANKS = [0, 25, -20, 10, -25, 15, 0, -15, 25, -10, 20, -25, 5, 25, -20, 10, -5, 20, -25, 15]
+
+
+def _doc(sensor: dict, duration: float, dt: float, seed: int = 5) -> dict:
+    times = np.arange(len(_BANKS) * 4) * (duration / (len(_BANKS) * 4))
+    return {
+        "aircraft": {"model": "light-single"},
+        "actuator": {"time_constant_s": 0.08, "limit_deg": 20.0, "rate_limit_deg_s": 60.0},
+        "sensor": copy.deepcopy(sensor),
+        "controller": {"kind": "pid", "rate_hz": 50.0, "kp": 0.6, "ki_per_s": 0.1, "kd_s": 0.08},
+        "command": {"profile": "sequence", "times_s": times.tolist(), "banks_deg": (_BANKS * 4)},
+        "run": {"duration_s": duration, "base_step_s": dt, "seed": seed, "runs": 1},
+    }
+
+
+# name: (sensor section, duration s, base step s, expected effective latency s)
+CONFIGS = {
+    "independent-losses": ({"frame_rate_hz": 30.0, "latency_s": 0.05, "noise_deg": 0.3, "bias_deg": 0.8,
+                            "scale": 0.98, "dropout_prob": 0.05, "range_deg": 80.0}, 120.0, 0.01, 0.05),
+    "bursty-glare": ({"frame_rate_hz": 25.0, "latency_s": 0.12, "noise_deg": 0.5, "bias_deg": -1.5,
+                      "scale": 1.02, "range_deg": 80.0,
+                      "bursts": {"loss_rate": 0.15, "mean_burst_frames": 6.0}}, 400.0, 0.01, 0.12),
+    "classifier-best": ({"frame_rate_hz": 20.0, "latency_s": 0.08, "noise_deg": 0.8, "bias_deg": 0.5,
+                         "range_deg": 80.0, "dropout_prob": 0.08,
+                         "classifier": {"class_width_deg": 2.0, "sharpness": 4.0, "decode": "best"}},
+                        150.0, 0.01, 0.08),
+    "wander-outliers": ({"frame_rate_hz": 30.0, "latency_s": 0.06, "noise_deg": 0.2, "wander_deg": 0.3,
+                         "wander_time_s": 2.0, "bias_deg": 2.0, "scale": 1.04, "outlier_prob": 0.01,
+                         "outlier_deg": 20.0, "range_deg": 80.0}, 300.0, 0.01, 0.06),
+    "quantised-jitter-exposure": ({"frame_rate_hz": 20.0, "latency_s": 0.1, "jitter_s": 0.004,
+                                   "exposure_s": 0.02, "noise_deg": 0.4, "quantization_deg": 0.5,
+                                   "bias_deg": -0.7, "scale": 1.01, "dropout_prob": 0.1,
+                                   "range_deg": 80.0}, 120.0, 0.005, 0.11),
+}
+
+
+@pytest.fixture(scope="module")
+def fits():
+    out = {}
+    for i, (name, (sensor, duration, dt, _)) in enumerate(CONFIGS.items()):
+        # a different seed per configuration, so their random draws are independent
+        log = make_log(parse_scenario(_doc(sensor, duration, dt, seed=11 + i), file=f"{name}.toml"))
+        out[name] = (log, fit_sensor(log.t, log.reference, log.reading, log.valid))
+    return out
+
+
+@pytest.mark.parametrize("name", list(CONFIGS))
+def test_round_trip(fits, name):
+    sensor, duration, dt, latency = CONFIGS[name]
+    log, fit = fits[name]
+    deg = math.degrees
+    assert abs(fit["latency_s"] - latency) <= dt / 2
+    assert abs(deg(fit["bias_rad"]) - sensor.get("bias_deg", 0.0)) <= 0.1
+    assert_allclose(fit["scale"], sensor.get("scale", 1.0), rtol=0.01)
+    assert_allclose(fit["frame_rate_hz"], sensor["frame_rate_hz"], rtol=0.01)
+    assert_allclose(deg(fit["noise_rad"]), sensor["noise_deg"], rtol=0.10)
+    if "bursts" in sensor:
+        b = sensor["bursts"]
+        assert fit.bursty
+        assert_allclose(fit["loss_rate"], b["loss_rate"], rtol=0.20)
+        assert_allclose(fit["mean_burst_frames"], b["mean_burst_frames"], rtol=0.25)
+    elif sensor.get("dropout_prob", 0) > 0:
+        p = sensor["dropout_prob"]
+        assert not fit.bursty
+        assert_allclose(fit["loss_rate"], p, rtol=0.20)
+        # independent losses: bursts geometric with mean 1/(1 − p) (Gilbert–Elliott with r = 1 − p)
+        assert_allclose(fit["mean_burst_frames"], 1 / (1 - p), rtol=0.25)
+    else:
+        assert fit["loss_rate"] == 0.0
+    if "classifier" in sensor:
+        assert_allclose(deg(fit["quantization_rad"]), sensor["classifier"]["class_width_deg"], rtol=0.01)
+    if "quantization_deg" in sensor:
+        assert_allclose(deg(fit["quantization_rad"]), sensor["quantization_deg"], rtol=0.01)
+    if "wander_deg" in sensor:
+        # looser: a 300 s log holds ~150 correlation times; SE ≈ 6 % of σ, 20 % of τ
+        assert_allclose(deg(fit["wander_rad"]), sensor["wander_deg"], rtol=0.25)
+        assert_allclose(fit["wander_time_s"], sensor["wander_time_s"], rtol=0.5)
+    if "outlier_prob" in sensor:
+        assert_allclose(fit["outlier_prob"], sensor["outlier_prob"], rtol=0.3)  # ~90 outliers: SE 11 %
+        assert_allclose(deg(fit["outlier_rad"]), sensor["outlier_deg"], rtol=0.15)
+    if "jitter_s" in sensor:
+        # time stamps snap to the base grid: adds dt²/12 to the jitter variance
+        assert_allclose(fit["jitter_s"], math.hypot(sensor["jitter_s"], dt / math.sqrt(12)), rtol=0.15)
+    # the written section is a valid [sensor] section
+    import tomllib
+
+    doc = tomllib.loads(sensor_toml(fit, name))
+    parse_sensor(Section(doc["sensor"], file="fit.toml", path="sensor"), base_step_s=dt)
+
+
+def test_log_file_round_trip(tmp_path, fits):
+    log, fit = fits["bursty-glare"]
+    write_log(tmp_path / "log.csv", log)
+    back = read_log(tmp_path / "log.csv")
+    assert_allclose(back.t, log.t, atol=1e-6)
+    ok = log.valid
+    assert_allclose(back.reading[ok], log.reading[ok], atol=1e-7)
+    assert np.all(np.isnan(back.reading[~ok])) and np.array_equal(back.valid, log.valid)
+
+
+@pytest.mark.parametrize("change, message", [
+    (lambda t, r, y, v: (t[:40], r[:40], y[:40], v[:40]), "too short"),
+    (lambda t, r, y, v: (t[::-1].copy(), r, y, v), "backwards"),
+    (lambda t, r, y, v: (t, r, y, np.zeros_like(v)), "invalid"),
+    (lambda t, r, y, v: (t, np.where(np.arange(t.size) < t.size // 2, r, np.nan),
+                         np.where(np.arange(t.size) >= t.size // 2, y, np.nan), v), "overlap"),
+])
+def test_refuses_unusable_logs(fits, change, message):
+    log, _ = fits["independent-losses"]
+    with pytest.raises(LogProblem, match=message):
+        fit_sensor(*change(log.t, log.reference, log.reading, log.valid))
