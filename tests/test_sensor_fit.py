@@ -134,3 +134,36 @@ def test_refuses_unusable_logs(fits, change, message):
     log, _ = fits["independent-losses"]
     with pytest.raises(LogProblem, match=message):
         fit_sensor(*change(log.t, log.reference, log.reading, log.valid))
+
+
+def test_cli_fits_the_bundled_example(tmp_path, capsys):
+    import json
+    from pathlib import Path
+
+    from sim.cli.main import main
+
+    log = Path(__file__).parent.parent / "scenarios" / "logs" / "crop-duster-camera.csv"
+    out = tmp_path / "fit"
+    assert main(["fit-sensor", str(log), "--format", "json", "--out", str(out)]) == 0
+    rows = {r["quantity"]: r for r in json.loads(capsys.readouterr().out)[0]["rows"]}
+    # the scenario that made it: latency 0.08 s, bias 1.2°, scale 1.03, bursts 8 % x 5 frames
+    assert abs(rows["latency_s"]["estimate"] - 0.08) <= 0.0025  # half the 5 ms base step
+    assert abs(rows["bias_deg"]["estimate"] - 1.2) <= 3 * rows["bias_deg"]["se"] + 0.05
+    assert_allclose(rows["scale"]["estimate"], 1.03, rtol=0.01)
+    assert_allclose(rows["loss_rate"]["estimate"], 0.08, rtol=0.2)
+    assert {p.name for p in out.iterdir()} >= {"sensor.toml", "fit.png", "manifest.json"}
+
+
+def test_cli_refuses_bad_logs_with_one_line(tmp_path, capsys):
+    from sim.cli.main import main
+
+    short = tmp_path / "short.csv"
+    short.write_text("t_s,reference_deg,reading_deg\n" + "".join(f"{i * 0.1},0,0\n" for i in range(10)))
+    assert main(["fit-sensor", str(short), "--no-files"]) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "too short" in err and "short.csv" in err
+    nocol = tmp_path / "nocol.csv"
+    nocol.write_text("time,ref,cam\n0,0,0\n")
+    assert main(["fit-sensor", str(nocol), "--no-files"]) == 2
+    err = capsys.readouterr().err
+    assert "'t_s' not found" in err and "--time-col" in err
