@@ -371,7 +371,9 @@ def rational_loop(parts: LoopParts, pade_order: int = 6) -> ct.StateSpace:
         plant dynamics appear once even when two sensor paths are summed.
     """
     def delay(tau: float) -> ct.StateSpace:
-        if tau <= 0.0:
+        # Below 1 µs a delay is invisible at any frequency analysed, and its scaled
+        # realisation (poles ~ n/τ) would swamp the eigenvalues.
+        if tau < 1e-6:
             return ct.ss([], [], [], [[1.0]])
         # Realise the Padé approximant of a 1 s delay, then scale time: G(sτ) has the
         # realisation (A/τ, B/τ, C, D). Realising ct.pade(τ, n) directly gives

@@ -117,6 +117,8 @@ class ScheduleStats:
         Mean time between ticks that bring a new reading.
     tick_s : s
         Controller period.
+    max_age_s : s
+        Oldest reading used at any tick (compare with the PID's ``stale_after_s``).
     """
 
     mean_age_s: float
@@ -124,6 +126,7 @@ class ScheduleStats:
     new_reading_gap_s: float
     new_reading_interval_s: float
     tick_s: float
+    max_age_s: float = 0.0
 
 
 def schedule_stats(sc: Scenario, *, frames: int = 600) -> ScheduleStats:
@@ -169,6 +172,7 @@ def schedule_stats(sc: Scenario, *, frames: int = 600) -> ScheduleStats:
         new_reading_gap_s=float(gap.mean()),
         new_reading_interval_s=float(interval.mean()) if interval.size else every * dt,
         tick_s=every * dt,
+        max_age_s=float(age.max()),
     )
 
 
@@ -232,7 +236,8 @@ def loop_parts_from_scenario(sc: Scenario) -> LoopParts:
         # D path: reading age at new-reading ticks + half the difference interval, versus
         # the P path's mean age + half a tick (LoopParts adds the tick hold to both).
         d_path = st.new_reading_age_s + 0.5 * st.new_reading_gap_s
-        extra = max(0.0, d_path - st.mean_age_s - 0.5 * st.tick_s)
+        # (rounded to 1 µs: a sub-microsecond delay is noise from the averaging)
+        extra = max(0.0, round(d_path - st.mean_age_s - 0.5 * st.tick_s, 6))
         filter_hz = pid.derivative_filter_hz * st.tick_s / max(st.new_reading_interval_s, st.tick_s)
     return LoopParts.from_plant(
         sc.plant,

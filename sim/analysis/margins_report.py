@@ -50,9 +50,23 @@ from .linear_loop import (
     margins,
     open_loop_response,
 )
-from .loop_from_scenario import CameraDelay, camera_delay, has_linear_model, loop_parts_from_scenario
+from .loop_from_scenario import (
+    CameraDelay,
+    camera_delay,
+    has_linear_model,
+    loop_parts_from_scenario,
+    schedule_stats,
+)
 
-__all__ = ["MarginsReport", "margins_report", "margins_tables", "run_margins_table", "write_margin_plots"]
+__all__ = [
+    "MarginsReport",
+    "margins_report",
+    "margins_tables",
+    "run_margins_table",
+    "near_tangent_crossovers",
+    "stale_readings",
+    "write_margin_plots",
+]
 
 
 @dataclass(frozen=True)
@@ -320,8 +334,15 @@ def _margin_table(rep: MarginsReport) -> Table:
             f"{e.runs_simulated} runs of {e.duration_s:.3g} s at base step {e.base_step_s * 1e3:.3g} ms "
             f"(delay resolution){loss_txt}; ± is half the final bracket."
         )
+    stale = stale_readings(sc)
+    if stale is not None:
+        t.notes.append(
+            f"Caution: at some ticks the reading is {stale * 1e3:.0f} ms old, beyond the PID's "
+            f"stale_after_s = {sc.controller.pid.stale_after_s:g} s: the PID then holds its output "
+            "(not a linear law), so the analytic margins do not describe this loop; trust the empirical ones."
+        )
     if rep.parts is not None:
-        near = _near_tangent_crossovers(rep.parts)
+        near = near_tangent_crossovers(rep.parts)
         if near:
             t.notes.append(
                 "Caution: |L| has a peak or dip within 0.5 dB of 0 dB near "
@@ -337,7 +358,7 @@ def _margin_table(rep: MarginsReport) -> Table:
     return t
 
 
-def _near_tangent_crossovers(parts: LoopParts) -> list[tuple[float, float]]:
+def near_tangent_crossovers(parts: LoopParts) -> list[tuple[float, float]]:
     """Local extrema of |L| (dB) within ±0.5 dB of 0 dB: (ω rad/s, dB)."""
     w = np.logspace(-2.0, 2.0, 4001)
     db = 20.0 * np.log10(np.abs(open_loop_response(parts, w)))
@@ -345,6 +366,14 @@ def _near_tangent_crossovers(parts: LoopParts) -> list[tuple[float, float]]:
     ext = ((inner > db[:-2]) & (inner > db[2:])) | ((inner < db[:-2]) & (inner < db[2:]))
     idx = np.nonzero(ext & (np.abs(inner) < 0.5))[0] + 1
     return [(float(w[i]), float(db[i])) for i in idx]
+
+
+def stale_readings(sc: Scenario) -> float | None:
+    """Oldest reading age (s) at the ticks if it exceeds the PID's ``stale_after_s``, else None."""
+    if not has_linear_model(sc):
+        return None
+    age = schedule_stats(sc).max_age_s
+    return age if age > sc.controller.pid.stale_after_s else None
 
 
 def _delay_table(rep: MarginsReport) -> Table:
