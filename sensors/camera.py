@@ -321,7 +321,7 @@ class CameraReader:
             latency_extra_s=None if "latency" not in draws else cfg.latency_jitter_s * draws["latency"],
         )
         self.n_frames, self.batch = n, batch
-        self._captures = self.plan.captures_by_step()
+        self._captures = None  # built on first use (not needed in record mode)
         self._latest = self.plan.latest_delivered(np.asarray(tick_steps))
         # frame-major (n + 1, batch) arrays; the spare last row (index -1)
         # stands for "no frame yet" and is never valid
@@ -355,7 +355,11 @@ class CameraReader:
     @property
     def captures(self) -> dict:
         """Base steps at which :meth:`capture` must be called (empty in record mode)."""
-        return {} if self.history is not None else self._captures
+        if self.history is not None:
+            return {}
+        if self._captures is None:
+            self._captures = self.plan.captures_by_step()
+        return self._captures
 
     def _evaluate(self, frames, rows, bank: np.ndarray | None = None):
         """Reading, validity and confidence of frames (given bank, or from history)."""
@@ -380,7 +384,7 @@ class CameraReader:
         """
         if self.history is not None:
             return
-        hit = self._captures.get(k)
+        hit = self.captures.get(k)
         if hit is None:
             return
         rows, frames = hit

@@ -76,12 +76,18 @@ class FramePlan:
         if np.all(d == d[:1]):  # same timing in every run: one search serves all
             one = np.searchsorted(d[0], steps, side="right") - 1
             return np.repeat(one[:, None], batch, axis=1)
-        # count deliveries per run and step, then a running sum: O(batch·steps)
-        span = int(max(d.max(initial=0), steps.max(initial=0))) + 1
-        flat = (d + (np.arange(batch) * span)[:, None]).ravel()
-        count = np.bincount(flat, minlength=batch * span).reshape(batch, span)
-        upto = np.cumsum(count, axis=1)[:, steps]  # frames delivered at or before each step
-        return np.ascontiguousarray(upto.T - 1)
+        # bin each delivery by the first queried step at or after it, count per
+        # run and bin, then a running sum over the queries: O(frames + queries)
+        nq = steps.size
+        order = np.argsort(steps, kind="stable")
+        srt = steps[order]
+        bins = np.searchsorted(srt, d, side="left")  # (batch, n): 0..nq
+        flat = (bins + (np.arange(batch) * (nq + 1))[:, None]).ravel()
+        count = np.bincount(flat, minlength=batch * (nq + 1)).reshape(batch, nq + 1)
+        upto = np.cumsum(count[:, :nq], axis=1)  # delivered at or before each sorted query
+        out = np.empty((nq, batch), dtype=np.int64)
+        out[order] = upto.T - 1
+        return out
 
 
 def plan_frames(

@@ -176,3 +176,14 @@ def test_sensor_section_keys_and_errors():
         with pytest.raises(ScenarioError, match=key) as info:
             parse_sensor(Section(extra, file="f.toml", path="sensor"), base_step_s=0.01)
         assert "f.toml" in str(info.value) and "\n" not in str(info.value)
+
+
+def test_latest_delivered_matches_per_run_search():
+    # second method: a plain per-run searchsorted
+    from sensors.timing import FramePlan
+
+    d = np.sort(np.random.default_rng(0).integers(0, 500, (7, 80)), axis=1)
+    steps = np.arange(0, 520, 3)[::-1]  # any order of queries
+    got = FramePlan(d, d).latest_delivered(steps)
+    ref = np.array([[np.searchsorted(d[b], s, side="right") - 1 for b in range(7)] for s in steps])
+    assert_array_equal(got, ref)
