@@ -43,7 +43,7 @@ from .plant import LinearPlant, discretize
 from .seeding import run_generators
 from .trace import Trace
 
-__all__ = ["LoopSetup", "Stepper", "simulate"]
+__all__ = ["LoopSetup", "Stepper", "simulate", "matmul_cols"]
 
 _BLOCK = 512  # base steps of disturbance fetched at once
 
@@ -93,6 +93,23 @@ class LoopSetup:
     @property
     def tick_steps(self) -> np.ndarray:
         return np.arange(0, self.n_steps, self.ctrl_every)
+
+
+def matmul_cols(a: np.ndarray, x: np.ndarray, out: np.ndarray | None = None) -> np.ndarray:
+    """``a @ x`` whose columns do not depend on how many columns ``x`` has.
+
+    BLAS multiplies a single column by a different kernel (matrix-vector)
+    than a block of columns, which changes the last bits; a lone column is
+    therefore doubled, so that run *i* alone equals run *i* in a batch bit
+    for bit.
+    """
+    if x.shape[1] != 1:
+        return np.matmul(a, x, out=out)
+    r = np.matmul(a, np.concatenate([x, x], axis=1))[:, :1]
+    if out is None:
+        return r
+    out[...] = r
+    return out
 
 
 class Stepper:
@@ -254,7 +271,7 @@ class Stepper:
             if perturbed:
                 X[nx + 1] = self._perturbed_command(k, u)
                 may_bind = True
-            np.matmul(m, X, out=Y[: nx + 1])
+            matmul_cols(m, X, out=Y[: nx + 1])
             if may_bind:
                 self._limit_servo(X, Y, lim, max_change)
             if self.dist:
@@ -302,7 +319,7 @@ class Stepper:
         bind = clipped != free
         if bind.any():
             mean = 0.5 * (before[bind] + clipped[bind])  # straight-line servo motion
-            Y[:nx, bind] = self._ad @ X[:nx, bind] + self._b_ail[:, None] * mean
+            Y[:nx, bind] = matmul_cols(self._ad, X[:nx, bind]) + self._b_ail[:, None] * mean
             Y[nx, bind] = clipped[bind]
 
     @property
@@ -334,7 +351,7 @@ class Stepper:
             n = min(_BLOCK, self.setup.n_steps - k)
             self._dist_eff = self.dist.block(k, n, self.batch)  # (n, batch, 4)
         # one small product per step beats a block-wide einsum here
-        return self._bd @ self._dist_eff[k - self._d0].T
+        return matmul_cols(self._bd, self._dist_eff[k - self._d0].T)
 
     def _diverge(self, rows: np.ndarray) -> None:
         rows = rows & self.alive

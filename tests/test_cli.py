@@ -191,13 +191,6 @@ def test_replay_is_run_n_of_the_batch(replayed):
                                    atol=1e-12, err_msg=key)
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason="sim/core.py steps the plant with np.matmul(m, X) over (n, batch); BLAS picks a "
-    "different kernel for batch 1 and batch 3, so plant states differ in the last bits "
-    "(~1e-15 rad) and a metric such as settling time in its 14th digit. DESIGN.md asks for "
-    "bit-identical replay; remove this mark once the core's product is batch-independent.",
-)
 def test_replay_is_bit_identical(replayed):
     batch, one = replayed
     mb, mo = _metrics(batch), _metrics(one)
