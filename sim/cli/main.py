@@ -19,6 +19,7 @@ __all__ = ["main", "COMMANDS"]
 COMMANDS = {
     "run": "run_cmd",
     "check": "check_cmd",
+    "turbulence": "turbulence_cmd",
     "fit-sensor": "fit_cmd",
     "make-log": "makelog_cmd",
     "margins": "margins_cmd",
