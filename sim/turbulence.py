@@ -401,7 +401,6 @@ class DrydenTurbulence:
             z0[:, i] = g.standard_normal(4)
         self._x = self._tri_apply(lp, z0)  # (4, batch) state at step self._k
         self._k = 0
-        self._buffers = None
 
     @staticmethod
     def _tri_apply(low: np.ndarray, z: np.ndarray) -> np.ndarray:
@@ -450,8 +449,7 @@ class DrydenTurbulence:
     def block(self, k0: int, n: int) -> np.ndarray:
         """Gust inputs for base steps ``k0 .. k0+n-1``, shape ``(n, batch, 4)``.
 
-        The result is a transposed (non-contiguous) view of a buffer that the
-        next call overwrites: use it before asking for the next block.
+        The result is a transposed (non-contiguous) view of a fresh array.
         """
         if k0 != self._k:
             raise ValueError(
@@ -459,13 +457,10 @@ class DrydenTurbulence:
                 "(blocks must come in order, without gaps)"
             )
         batch = len(self._rngs)
+        out = np.empty((batch, n, N_CHANNELS))
         if n == 0:
-            return np.empty((0, batch, N_CHANNELS))
-        # Buffers are reused from block to block: first-touch page faults on
-        # fresh (batch, n, 4) arrays cost more than the arithmetic here.
-        if self._buffers is None or self._buffers[0].shape[1] < n:
-            self._buffers = (np.empty((batch, n, N_CHANNELS)), np.empty((batch, n, 4)))
-        out, z = (b[:, :n] for b in self._buffers)
+            return out.transpose(1, 0, 2)
+        z = np.empty((batch, n, 4))
         for i, g in enumerate(self._rngs):
             g.standard_normal(out=z[i])  # run i's own stream, in time order
         # Runs in small groups so the temporaries stay in cache (not a per-run loop).
