@@ -24,10 +24,10 @@ Statistics each stage is built to reproduce (and is tested against):
 from __future__ import annotations
 
 import numpy as np
-from scipy.signal import lfilter
 
 __all__ = [
     "white_noise",
+    "first_order_recursion",
     "gauss_markov",
     "outlier_offsets",
     "quantize",
@@ -50,6 +50,24 @@ def _col(x) -> np.ndarray | float:
 def white_noise(eps: np.ndarray, std) -> np.ndarray:
     """Independent noise ``std·ε``; ``eps`` standard normal ``(batch, n)``."""
     return _col(std) * eps
+
+
+def first_order_recursion(u: np.ndarray, a: float, y_prev: np.ndarray | float | None = None) -> np.ndarray:
+    """``y[k] = a·y[k−1] + u[k]`` along the last axis, vectorised over the others.
+
+    ``y[−1]`` is ``y_prev`` (0 if not given). A loop over samples with every
+    run in each step: for batches it is several times faster than
+    ``scipy.signal.lfilter`` (and keeps scipy.signal's ~1 s import off the
+    start-up path), and each run's numbers do not depend on the batch size.
+    """
+    yt = np.array(np.moveaxis(np.asarray(u, dtype=float), -1, 0), copy=True)  # (n, ...)
+    if yt.shape[0] == 0:
+        return np.moveaxis(yt, 0, -1)
+    if y_prev is not None:
+        yt[0] += a * np.asarray(y_prev, dtype=float)
+    for k in range(1, yt.shape[0]):
+        yt[k] += a * yt[k - 1]
+    return np.moveaxis(yt, 0, -1)
 
 
 def gauss_markov(eps: np.ndarray, std, tau_s, step_s: float) -> np.ndarray:
@@ -77,13 +95,7 @@ def gauss_markov(eps: np.ndarray, std, tau_s, step_s: float) -> np.ndarray:
     if eps.shape[-1] == 0:
         return x
     x[..., 0] = eps[..., 0]  # stationary start
-    if x.ndim == 1 or x.shape[0] < 8:
-        x = lfilter([1.0], [1.0, -a], x, axis=-1)
-    else:  # many runs: a loop over samples, vectorised over runs, is ~10x faster than lfilter
-        xt = np.ascontiguousarray(x.T)
-        for f in range(1, xt.shape[0]):
-            xt[f] += a * xt[f - 1]
-        x = xt.T
+    x = first_order_recursion(x, a)
     return _col(std) * x
 
 

@@ -71,7 +71,8 @@ from dataclasses import dataclass
 
 import numpy as np
 import scipy.linalg
-from scipy.signal import lfilter
+
+from sensors.stages import first_order_recursion
 
 from .disturbance import N_CHANNELS
 
@@ -111,7 +112,6 @@ _LOW_FT = 1000.0
 _HIGH_FT = 2000.0
 _HIGH_SCALE_FT = 1750.0
 _SQRT3 = math.sqrt(3.0)
-_RUN_GROUP = 64  # runs processed together inside a block (cache-sized temporaries)
 
 
 @dataclass(frozen=True)
@@ -417,55 +417,45 @@ class DrydenTurbulence:
         return out
 
     # ------------------------------------------------------------------ blocks
-    def _propagate(self, i: int, rows: slice, u: np.ndarray) -> np.ndarray:
-        """States ``x_i[k0 .. k0+n-1]`` of ``x[k+1] = a x[k] + u[k]`` for some runs."""
+    def _propagate(self, i: int, u: np.ndarray) -> np.ndarray:
+        """States ``x_i[k0 .. k0+n-1]`` of ``x[k+1] = a x[k] + u[k]``; ``u`` is (n, batch)."""
         a = self._phi[i, i]
-        start = self._x[i, rows]
-        # lfilter output y[k] = x_i[k0+k+1]; its initial condition is zi = a x_i[k0].
-        y, _ = lfilter([1.0], [1.0, -a], u, axis=-1, zi=(a * start)[:, None])
+        start = self._x[i]
+        # y[k] = x_i[k0+k+1] = a·x_i[k0+k] + u[k], time along axis 0
+        y = first_order_recursion(u.T, a, y_prev=start).T
         x = np.empty_like(y)
-        x[:, 0] = start
-        x[:, 1:] = y[:, :-1]
-        self._x[i, rows] = y[:, -1]
+        x[0] = start
+        x[1:] = y[:-1]
+        self._x[i] = y[-1]
         return x
 
-    def _fill(self, rows: slice, z: np.ndarray, out: np.ndarray) -> None:
-        """Advance runs ``rows`` through one block: normals ``z`` → gusts ``out``."""
-        lq, phi, c = self._lq, self._phi, self._c
-        z0, z1, z2, z3 = z[..., 0], z[..., 1], z[..., 2], z[..., 3]
-        # Lower-triangular recursions, state by state, each vectorised over time
-        # and runs; the products are written out elementwise so each run's
-        # numbers do not depend on the batch size or the block length.
-        x0 = self._propagate(0, rows, lq[0, 0] * z0)
-        x1 = self._propagate(1, rows, lq[1, 0] * z0 + lq[1, 1] * z1 + phi[1, 0] * x0)
-        u2 = lq[2, 0] * z0 + lq[2, 1] * z1 + lq[2, 2] * z2 + phi[2, 0] * x0 + phi[2, 1] * x1
-        x2 = self._propagate(2, rows, u2)
-        x3 = self._propagate(3, rows, lq[3, 3] * z3)
-        out[..., 0] = c[0, 0] * x0 + c[0, 1] * x1
-        out[..., 1] = c[1, 3] * x3
-        out[..., 2] = c[2, 0] * x0 + c[2, 1] * x1 + c[2, 2] * x2
-        out[..., 3] = 0.0
-
     def block(self, k0: int, n: int) -> np.ndarray:
-        """Gust inputs for base steps ``k0 .. k0+n-1``, shape ``(n, batch, 4)``.
-
-        The result is a transposed (non-contiguous) view of a fresh array.
-        """
+        """Gust inputs for base steps ``k0 .. k0+n-1``, shape ``(n, batch, 4)`` (a fresh array)."""
         if k0 != self._k:
             raise ValueError(
                 f"DrydenTurbulence.block: expected k0 = {self._k}, got {k0} "
                 "(blocks must come in order, without gaps)"
             )
         batch = len(self._rngs)
-        out = np.empty((batch, n, N_CHANNELS))
+        out = np.empty((n, batch, N_CHANNELS))
         if n == 0:
-            return out.transpose(1, 0, 2)
+            return out
         z = np.empty((batch, n, 4))
         for i, g in enumerate(self._rngs):
             g.standard_normal(out=z[i])  # run i's own stream, in time order
-        # Runs in small groups so the temporaries stay in cache (not a per-run loop).
-        for s in range(0, batch, _RUN_GROUP):
-            rows = slice(s, min(s + _RUN_GROUP, batch))
-            self._fill(rows, z[rows], out[rows])
+        z = np.ascontiguousarray(z.transpose(2, 1, 0))  # (4, n, batch): time-major per normal
+        lq, phi, c = self._lq, self._phi, self._c
+        # Lower-triangular recursions, state by state, vectorised over runs;
+        # the products are written out elementwise so each run's numbers do not
+        # depend on the batch size or the block length.
+        x0 = self._propagate(0, lq[0, 0] * z[0])
+        x1 = self._propagate(1, lq[1, 0] * z[0] + lq[1, 1] * z[1] + phi[1, 0] * x0)
+        u2 = lq[2, 0] * z[0] + lq[2, 1] * z[1] + lq[2, 2] * z[2] + phi[2, 0] * x0 + phi[2, 1] * x1
+        x2 = self._propagate(2, u2)
+        x3 = self._propagate(3, lq[3, 3] * z[3])
+        out[..., 0] = c[0, 0] * x0 + c[0, 1] * x1
+        out[..., 1] = c[1, 3] * x3
+        out[..., 2] = c[2, 0] * x0 + c[2, 1] * x1 + c[2, 2] * x2
+        out[..., 3] = 0.0
         self._k = k0 + n
-        return out.transpose(1, 0, 2)
+        return out
