@@ -260,20 +260,21 @@ class Stepper:
         X, Y = self._X, self._Y
         X[nx + 1] = u
         Y[nx + 1] = u
-        # While the command is held the lag's per-step change only shrinks, so
-        # the limits can bind in this tick only if they bind at its start.
-        may_bind = bool(
-            np.max(np.abs(u), initial=0.0) > lim
-            or self._alpha * np.max(np.abs(u - X[nx]), initial=0.0) > max_change
-        )
         perturbed = self._gain is not None or self._delay_steps is not None
+        if perturbed:  # the command changes within the tick: any run may bind
+            near_limit = self._rows
+        else:
+            # While the command is held the lag's per-step change only shrinks,
+            # so a run can meet a limit in this tick only if it does at its start.
+            near_limit = np.flatnonzero(
+                (np.abs(u) > lim) | (self._alpha * np.abs(u - X[nx]) > max_change)
+            )
         for k in range(self.k, stop):
             if perturbed:
                 X[nx + 1] = self._perturbed_command(k, u)
-                may_bind = True
             matmul_cols(m, X, out=Y[: nx + 1])
-            if may_bind:
-                self._limit_servo(X, Y, lim, max_change)
+            if near_limit.size:
+                self._limit_servo(X, Y, near_limit, lim, max_change)
             if self.dist:
                 Y[:nx] += self._disturbance_row(k)
             if frozen:
@@ -311,16 +312,21 @@ class Stepper:
             cmd = cmd * self._gain
         return cmd
 
-    def _limit_servo(self, X: np.ndarray, Y: np.ndarray, lim: float, max_change: float) -> None:
-        """Clip the servo where a limit binds; redo those runs' plant step."""
+    def _limit_servo(
+        self, X: np.ndarray, Y: np.ndarray, rows: np.ndarray, lim: float, max_change: float
+    ) -> None:
+        """Clip the servo of ``rows`` where a limit binds; redo those runs' plant step."""
         nx = self._nx
-        before, free = X[nx], Y[nx]
-        clipped = np.clip(before + np.clip(free - before, -max_change, max_change), -lim, lim)
+        before, free = X[nx, rows], Y[nx, rows]
+        # np.minimum/np.maximum: np.clip's Python-level overhead shows at this call rate
+        change = np.minimum(np.maximum(free - before, -max_change), max_change)
+        clipped = np.minimum(np.maximum(before + change, -lim), lim)
         bind = clipped != free
         if bind.any():
+            r = rows[bind]
             mean = 0.5 * (before[bind] + clipped[bind])  # straight-line servo motion
-            Y[:nx, bind] = matmul_cols(self._ad, X[:nx, bind]) + self._b_ail[:, None] * mean
-            Y[nx, bind] = clipped[bind]
+            Y[:nx, r] = matmul_cols(self._ad, X[:nx, r]) + self._b_ail[:, None] * mean
+            Y[nx, r] = clipped[bind]
 
     @property
     def aileron(self) -> np.ndarray:
