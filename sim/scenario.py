@@ -42,8 +42,16 @@ __all__ = [
 ]
 
 SECTIONS = (
-    "scenario", "aircraft", "initial", "actuator", "sensor", "controller",
-    "command", "disturbance", "run", "criteria",
+    "scenario",
+    "aircraft",
+    "initial",
+    "actuator",
+    "sensor",
+    "controller",
+    "command",
+    "disturbance",
+    "run",
+    "criteria",
 )
 _D = math.radians
 
@@ -145,7 +153,6 @@ def parse_scenario(doc: dict, *, file: str = "<scenario>", sha256: str = "") -> 
         # checked by top.sub, then named "[name]" (not "[top level.name]") in messages
         return None if top.sub(name, required=req) is None else Section(doc[name], file=file, path=name)
 
-
     about = sec("scenario")
     title, story = Path(file).stem, ""
     if about is not None:
@@ -163,8 +170,8 @@ def parse_scenario(doc: dict, *, file: str = "<scenario>", sha256: str = "") -> 
     )
     if controller.pid is not None and controller.pid.derivative_source == "gyro" and gyro is None:
         raise ScenarioError(
-            f"{file}: [controller] derivative = \"gyro\" needs a [sensor.gyro] table; "
-            "allowed: \"measurement\" without a gyro"
+            f'{file}: [controller] derivative = "gyro" needs a [sensor.gyro] table; '
+            'allowed: "measurement" without a gyro'
         )
     command = _parse_command(sec("command"), run, x0[plant.phi_index])
     disturbances = tuple(
@@ -177,9 +184,20 @@ def parse_scenario(doc: dict, *, file: str = "<scenario>", sha256: str = "") -> 
     )
     criteria = _parse_criteria(sec("criteria"))
     return Scenario(
-        path=file, sha256=sha256, title=title, story=story, plant=plant, x0=x0,
-        actuator=actuator, camera=camera, gyro=gyro, controller=controller,
-        command=command, disturbances=disturbances, run=run, criteria=criteria,
+        path=file,
+        sha256=sha256,
+        title=title,
+        story=story,
+        plant=plant,
+        x0=x0,
+        actuator=actuator,
+        camera=camera,
+        gyro=gyro,
+        controller=controller,
+        command=command,
+        disturbances=disturbances,
+        run=run,
+        criteria=criteria,
     )
 
 
@@ -194,8 +212,11 @@ def _parse_run(s: Section | None) -> RunSpec:
         runs=s.integer("runs", 1, lo=1, hi=100_000),
     )
     if run.n_steps < 2:
-        raise s.error("duration_s", f"= {run.duration_s:g} is shorter than two base steps; "
-                      f"allowed: duration_s ≥ {2 * run.base_step_s:g} (2 × base_step_s)")
+        raise s.error(
+            "duration_s",
+            f"= {run.duration_s:g} is shorter than two base steps; "
+            f"allowed: duration_s ≥ {2 * run.base_step_s:g} (2 × base_step_s)",
+        )
     s.finish()
     return run
 
@@ -239,7 +260,9 @@ def _parse_command(s: Section | None, run: RunSpec, bank0: float) -> CommandSpec
         times = s.array("times_s", shape=(None,), lo=0.0, hi=run.duration_s)
         banks = s.array("banks_deg", shape=(None,), **lim)
         if times.size != banks.size or times.size == 0:
-            raise s.error("banks_deg", f"has {banks.size} values; allowed: one per entry of times_s ({times.size})")
+            raise s.error(
+                "banks_deg", f"has {banks.size} values; allowed: one per entry of times_s ({times.size})"
+            )
         if np.any(np.diff(times) <= 0):
             raise s.error("times_s", "must be strictly increasing; allowed: each time after the one before")
         if times[0] > 0:
@@ -256,7 +279,9 @@ def _parse_criteria(s: Section | None) -> CriteriaSpec:
     pct = s.number("settling_band_pct", None, lo=0.0, hi=50.0, lo_open=True)
     deg = s.number("settling_band_deg", None, lo=0.0, hi=30.0, lo_open=True)
     if pct is not None and deg is not None:
-        raise s.error("settling_band_deg", "cannot be given together with settling_band_pct; allowed: one of them")
+        raise s.error(
+            "settling_band_deg", "cannot be given together with settling_band_pct; allowed: one of them"
+        )
     opt = lambda key, hi: s.number(key, None, lo=0.0, hi=hi, lo_open=True)  # noqa: E731
     rad = lambda v: None if v is None else _D(v)  # noqa: E731
     spec = CriteriaSpec(

@@ -110,9 +110,8 @@ class Section:
             raise self.error(key, f"is too large a number; allowed: {rng}") from None
         if not math.isfinite(value):
             raise self.error(key, f"must be a finite number, got {value}; allowed: {rng}")
-        bad = (
-            (lo is not None and (value < lo or (lo_open and value == lo)))
-            or (hi is not None and (value > hi or (hi_open and value == hi)))
+        bad = (lo is not None and (value < lo or (lo_open and value == lo))) or (
+            hi is not None and (value > hi or (hi_open and value == hi))
         )
         if bad:
             raise self.error(key, f"= {_fmt(value)} is out of range; allowed: {rng}")
@@ -141,9 +140,7 @@ class Section:
             raise self.error(key, f"must be true or false, got {value!r}")
         return value
 
-    def string(
-        self, key: str, default: Any = REQUIRED, *, choices: Sequence[str] | None = None
-    ) -> str:
+    def string(self, key: str, default: Any = REQUIRED, *, choices: Sequence[str] | None = None) -> str:
         value = self._get(key, default)
         if value is None:
             return value
@@ -191,7 +188,9 @@ class Section:
         if not np.all(np.isfinite(arr)):
             raise self.error(key, "must hold finite numbers only")
         if (lo is not None and np.any(arr < lo)) or (hi is not None and np.any(arr > hi)):
-            raise self.error(key, f"has values out of range; allowed: {self._range_text(key, lo, hi, False, False)}")
+            raise self.error(
+                key, f"has values out of range; allowed: {self._range_text(key, lo, hi, False, False)}"
+            )
         return arr
 
     def sub(self, key: str, *, required: bool = False) -> Section | None:
@@ -215,10 +214,7 @@ class Section:
         value = self._get(key, [])
         if not isinstance(value, list) or not all(isinstance(v, Mapping) for v in value):
             raise self.error(key, f"must be an array of tables, written [[{self.path}.{key}]]")
-        return [
-            Section(v, file=self.file, path=f"{self.path}.{key} #{i + 1}")
-            for i, v in enumerate(value)
-        ]
+        return [Section(v, file=self.file, path=f"{self.path}.{key} #{i + 1}") for i, v in enumerate(value)]
 
     def finish(self) -> None:
         """Reject keys that no getter asked for, suggesting the nearest one."""

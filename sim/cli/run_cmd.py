@@ -12,28 +12,47 @@ __all__ = ["add_parser", "run", "HEADLINE_METRICS"]
 
 #: metrics drawn as histograms for Monte Carlo sets
 HEADLINE_METRICS = [
-    "settling_time_s", "overshoot_pct", "rms_error_rad",
-    "peak_abs_bank_rad", "aileron_rms_rad", "time_outside_band_s",
+    "settling_time_s",
+    "overshoot_pct",
+    "rms_error_rad",
+    "peak_abs_bank_rad",
+    "aileron_rms_rad",
+    "time_outside_band_s",
 ]
 
 
 def add_parser(sub) -> None:
-    p = sub.add_parser("run", help="simulate a scenario and report metrics",
-                       description="Simulate a scenario's Monte Carlo batch, print metrics, write an output folder.")
+    p = sub.add_parser(
+        "run",
+        help="simulate a scenario and report metrics",
+        description="Simulate a scenario's Monte Carlo batch, print metrics, write an output folder.",
+    )
     p.add_argument("scenario", metavar="FILE", help="scenario file (TOML)")
     p.add_argument("--runs", type=int, help="number of Monte Carlo runs (overrides [run] runs)")
     p.add_argument("--seed", type=int, help="run seed (overrides [run] seed)")
     p.add_argument("--replay", type=int, metavar="N", help="replay run N of the Monte Carlo set alone")
-    p.add_argument("--out", type=Path, metavar="DIR", help="output folder (default rollrig-runs/<name>-<time>)")
+    p.add_argument(
+        "--out", type=Path, metavar="DIR", help="output folder (default rollrig-runs/<name>-<time>)"
+    )
     p.add_argument("--force", action="store_true", help="replace an existing output folder")
     p.add_argument("--no-files", action="store_true", help="print the table only, write no folder")
-    p.add_argument("--format", choices=("table", "csv", "json", "md"), default="table",
-                   help="how to print the metrics (default: table)")
+    p.add_argument(
+        "--format",
+        choices=("table", "csv", "json", "md"),
+        default="table",
+        help="how to print the metrics (default: table)",
+    )
     p.add_argument("--plot", action="store_true", help="also write PNG plots")
-    p.add_argument("--allow-code", action="store_true",
-                   help="allow the scenario to load a user controller class (runs your code)")
-    p.add_argument("--margins", action="store_true",
-                   help="also print stability margins (analytic and empirical, see rollrig margins)")
+    p.add_argument(
+        "--allow-code",
+        action="store_true",
+        help="allow the scenario to load a user controller class (runs your code)",
+    )
+    p.add_argument(
+        "--margins",
+        action="store_true",
+        help="also print stability margins (analytic and empirical, see rollrig margins)",
+    )
     p.set_defaults(func=run)
 
 
@@ -57,7 +76,9 @@ def run(args: argparse.Namespace) -> int:
         sc = sc.with_run(**changes)
     if args.replay is not None:
         if not 0 <= args.replay < sc.run.runs:
-            raise UserInputError(f"--replay {args.replay}: allowed: 0 ≤ N < {sc.run.runs} (the runs of this set)")
+            raise UserInputError(
+                f"--replay {args.replay}: allowed: 0 ≤ N < {sc.run.runs} (the runs of this set)"
+            )
         runs = [args.replay]
     else:
         runs = list(range(sc.run.runs))
@@ -84,8 +105,7 @@ def run(args: argparse.Namespace) -> int:
         from sim.report.run_files import write_run_files
 
         with output_folder(out_dir, force=args.force) as tmp:
-            write_run_files(tmp, outcome, run_indices=runs,
-                            command_line=getattr(args, "command_line", None))
+            write_run_files(tmp, outcome, run_indices=runs, command_line=getattr(args, "command_line", None))
             (tmp / "metrics.md").write_text(render(tables, "md"))
             if args.plot:
                 _plots(tmp, outcome)
@@ -99,12 +119,32 @@ def _plots(folder: Path, outcome) -> None:
 
     sc, tr = outcome.scenario, outcome.trace
     worst = 0
-    plot_bank(tr, folder / "bank.png", run=worst, bank_limit_rad=sc.criteria.bank_limit_rad,
-              title=f"{sc.title}: bank angle, run {int(tr.run_index[worst])}")
-    plot_aileron(tr, folder / "aileron.png", run=worst, limit_rad=sc.actuator.limit_rad,
-                 title=f"{sc.title}: aileron, run {int(tr.run_index[worst])}")
+    plot_bank(
+        tr,
+        folder / "bank.png",
+        run=worst,
+        bank_limit_rad=sc.criteria.bank_limit_rad,
+        title=f"{sc.title}: bank angle, run {int(tr.run_index[worst])}",
+    )
+    plot_aileron(
+        tr,
+        folder / "aileron.png",
+        run=worst,
+        limit_rad=sc.actuator.limit_rad,
+        title=f"{sc.title}: aileron, run {int(tr.run_index[worst])}",
+    )
     if tr.batch > 1:
-        plot_envelope(tr, folder / "envelope.png", bank_limit_rad=sc.criteria.bank_limit_rad,
-                      title=f"{sc.title}: bank envelope, {tr.batch} runs")
-        plot_histograms(outcome.metrics, METRIC_INFO, folder / "histograms.png", diverged=tr.diverged,
-                        keys=HEADLINE_METRICS, title=f"{sc.title}: {tr.batch} runs")
+        plot_envelope(
+            tr,
+            folder / "envelope.png",
+            bank_limit_rad=sc.criteria.bank_limit_rad,
+            title=f"{sc.title}: bank envelope, {tr.batch} runs",
+        )
+        plot_histograms(
+            outcome.metrics,
+            METRIC_INFO,
+            folder / "histograms.png",
+            diverged=tr.diverged,
+            keys=HEADLINE_METRICS,
+            title=f"{sc.title}: {tr.batch} runs",
+        )

@@ -13,10 +13,12 @@ __all__ = ["add_parser", "run"]
 
 def add_parser(sub) -> None:
     p = sub.add_parser(
-        "turbulence", help="compare simulated Dryden turbulence with its specified σ and PSD",
+        "turbulence",
+        help="compare simulated Dryden turbulence with its specified σ and PSD",
         description="Simulate the Dryden gusts for a scenario's [disturbance.turbulence] (or for the "
-                    "speed, altitude and intensity given here) and compare sample σ and Welch PSD "
-                    "with MIL-F-8785C.")
+        "speed, altitude and intensity given here) and compare sample σ and Welch PSD "
+        "with MIL-F-8785C.",
+    )
     p.add_argument("scenario", metavar="FILE", nargs="?", help="scenario with [disturbance.turbulence]")
     p.add_argument("--airspeed-mps", type=float, help="true airspeed (m/s), without FILE")
     p.add_argument("--altitude-ft", type=float, help="altitude above ground (ft), without FILE")
@@ -42,19 +44,32 @@ def _params(args):
         for src in sc.disturbances:
             if isinstance(src, DrydenTurbulence):
                 return src.params, sc.run.base_step_s
-        raise UserInputError(f"{args.scenario}: [disturbance.turbulence] is missing; "
-                             "allowed: a scenario with turbulence, or --airspeed-mps/--altitude-ft/--span-m")
-    missing = [o for o, v in (("--airspeed-mps", args.airspeed_mps), ("--altitude-ft", args.altitude_ft),
-                              ("--span-m", args.span_m)) if v is None]
+        raise UserInputError(
+            f"{args.scenario}: [disturbance.turbulence] is missing; "
+            "allowed: a scenario with turbulence, or --airspeed-mps/--altitude-ft/--span-m"
+        )
+    missing = [
+        o
+        for o, v in (
+            ("--airspeed-mps", args.airspeed_mps),
+            ("--altitude-ft", args.altitude_ft),
+            ("--span-m", args.span_m),
+        )
+        if v is None
+    ]
     if missing:
         raise UserInputError(f"rollrig turbulence: {', '.join(missing)} needed without a scenario FILE")
-    checks = (("--airspeed-mps", args.airspeed_mps, 1.0, 300.0), ("--altitude-ft", args.altitude_ft, 0.0, 100_000.0),
-              ("--span-m", args.span_m, 0.1, 100.0))
+    checks = (
+        ("--airspeed-mps", args.airspeed_mps, 1.0, 300.0),
+        ("--altitude-ft", args.altitude_ft, 0.0, 100_000.0),
+        ("--span-m", args.span_m, 0.1, 100.0),
+    )
     for name, v, lo, hi in checks:
         if not lo <= v <= hi:
             raise UserInputError(f"rollrig turbulence: {name} {v:g}: allowed: {lo:g} ≤ value ≤ {hi:g}")
-    return dryden_params(args.altitude_ft * FT_M, INTENSITY_W20_MPS[args.intensity], args.airspeed_mps,
-                         args.span_m), args.base_step_s
+    return dryden_params(
+        args.altitude_ft * FT_M, INTENSITY_W20_MPS[args.intensity], args.airspeed_mps, args.span_m
+    ), args.base_step_s
 
 
 def run(args: argparse.Namespace) -> int:
@@ -83,7 +98,14 @@ def run(args: argparse.Namespace) -> int:
         with output_folder(args.out, force=args.force) as tmp:
             plot_turbulence(chk, tmp / "turbulence_psd.png")
             (tmp / "turbulence.md").write_text(render([table], "md"))
-            write_json(tmp / "manifest.json", manifest(
-                scenario_path=args.scenario or "", scenario_sha256="", seed=args.seed, runs=range(args.records)))
+            write_json(
+                tmp / "manifest.json",
+                manifest(
+                    scenario_path=args.scenario or "",
+                    scenario_sha256="",
+                    seed=args.seed,
+                    runs=range(args.records),
+                ),
+            )
         print(f"wrote {args.out}/", file=sys.stderr if args.format != "table" else sys.stdout)
     return 0

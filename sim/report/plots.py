@@ -34,22 +34,27 @@ def _invalid_spans(t_ctrl: np.ndarray, valid: np.ndarray) -> list[tuple[float, f
     return [(t_ctrl[s], t_ctrl[e - 1] + dt) for s, e in zip(starts, ends, strict=True)]
 
 
-def plot_bank(trace: Trace, path: Path, *, run: int = 0, bank_limit_rad: float | None = None,
-              title: str = "") -> None:
+def plot_bank(
+    trace: Trace, path: Path, *, run: int = 0, bank_limit_rad: float | None = None, title: str = ""
+) -> None:
     """True, measured and commanded bank of one run; invalid frames shaded."""
     plt = pyplot()
     fig, ax = plt.subplots(figsize=(10, 4.2), layout="constrained")
     for i, (a, b) in enumerate(_invalid_spans(trace.t_ctrl, trace.valid[run])):
         ax.axvspan(a, b, color="0.85", lw=0, label="invalid or lost frame" if i == 0 else None)
     reading = np.where(np.isfinite(trace.age[run]), trace.bank_meas[run] * _DEG, np.nan)
-    ax.step(trace.t_ctrl, reading, where="post", color="tab:orange", lw=1.0,
-            label="camera reading used")
+    ax.step(trace.t_ctrl, reading, where="post", color="tab:orange", lw=1.0, label="camera reading used")
     ax.plot(trace.t, trace.bank[run] * _DEG, color="tab:blue", lw=1.6, label="true bank")
     ax.plot(trace.t, trace.bank_cmd[run] * _DEG, color="k", lw=1.0, ls="--", label="command")
     if bank_limit_rad is not None:
         for s in (1, -1):
-            ax.axhline(s * bank_limit_rad * _DEG, color="tab:red", lw=0.8, ls=":",
-                       label="bank limit" if s == 1 else None)
+            ax.axhline(
+                s * bank_limit_rad * _DEG,
+                color="tab:red",
+                lw=0.8,
+                ls=":",
+                label="bank limit" if s == 1 else None,
+            )
     if np.isfinite(trace.diverged_at[run]):
         ax.axvline(trace.diverged_at[run], color="tab:red", lw=1.5, label="diverged")
     ax.set_xlabel("time (s)")
@@ -65,11 +70,14 @@ def plot_aileron(trace: Trace, path: Path, *, run: int = 0, limit_rad: float, ti
     """Aileron position and command of one run, with the position limits."""
     plt = pyplot()
     fig, ax = plt.subplots(figsize=(10, 3.4), layout="constrained")
-    ax.step(trace.t_ctrl, trace.aileron_cmd[run] * _DEG, where="post", color="tab:gray", lw=0.9,
-            label="command")
+    ax.step(
+        trace.t_ctrl, trace.aileron_cmd[run] * _DEG, where="post", color="tab:gray", lw=0.9, label="command"
+    )
     ax.plot(trace.t, trace.aileron[run] * _DEG, color="tab:green", lw=1.4, label="position")
     for s in (1, -1):
-        ax.axhline(s * limit_rad * _DEG, color="tab:red", lw=0.8, ls=":", label="travel limit" if s == 1 else None)
+        ax.axhline(
+            s * limit_rad * _DEG, color="tab:red", lw=0.8, ls=":", label="travel limit" if s == 1 else None
+        )
     ax.set_xlabel("time (s)")
     ax.set_ylabel("aileron (deg)")
     ax.set_title(title or f"aileron, run {int(trace.run_index[run])}")
@@ -94,11 +102,18 @@ def plot_envelope(trace: Trace, path: Path, *, bank_limit_rad: float | None = No
     ax.plot(trace.t, trace.bank_cmd[0] * _DEG, color="k", ls="--", lw=1.0, label="command")
     if bank_limit_rad is not None:
         for s in (1, -1):
-            ax.axhline(s * bank_limit_rad * _DEG, color="tab:red", lw=0.8, ls=":",
-                       label="bank limit" if s == 1 else None)
+            ax.axhline(
+                s * bank_limit_rad * _DEG,
+                color="tab:red",
+                lw=0.8,
+                ls=":",
+                label="bank limit" if s == 1 else None,
+            )
     n_div = int((~keep).sum())
-    ax.set_title(title or f"bank envelope over {int(keep.sum())} runs"
-                 + (f" ({n_div} diverged, not shown)" if n_div else ""))
+    ax.set_title(
+        title
+        or f"bank envelope over {int(keep.sum())} runs" + (f" ({n_div} diverged, not shown)" if n_div else "")
+    )
     ax.set_xlabel("time (s)")
     ax.set_ylabel("bank angle (deg)")
     ax.grid(alpha=0.3)
@@ -107,8 +122,9 @@ def plot_envelope(trace: Trace, path: Path, *, bank_limit_rad: float | None = No
     plt.close(fig)
 
 
-def plot_histograms(metrics: dict, info: dict, path: Path, *, diverged: np.ndarray, keys: list[str],
-                    title: str = "") -> None:
+def plot_histograms(
+    metrics: dict, info: dict, path: Path, *, diverged: np.ndarray, keys: list[str], title: str = ""
+) -> None:
     """Histograms of headline metrics across the runs that did not diverge.
 
     Runs with an infinite value (e.g. never settled) are counted in the panel
@@ -118,8 +134,9 @@ def plot_histograms(metrics: dict, info: dict, path: Path, *, diverged: np.ndarr
     keys = [k for k in keys if k in metrics]
     cols = min(3, max(1, len(keys)))
     rows = int(np.ceil(len(keys) / cols))
-    fig, axes = plt.subplots(rows, cols, figsize=(4.2 * cols, 3.0 * rows), layout="constrained",
-                             squeeze=False)
+    fig, axes = plt.subplots(
+        rows, cols, figsize=(4.2 * cols, 3.0 * rows), layout="constrained", squeeze=False
+    )
     keep = ~np.asarray(diverged, bool)
     for ax, k in zip(axes.ravel(), keys, strict=False):
         v = np.asarray(metrics[k], float)[keep] * info[k].scale
@@ -133,7 +150,7 @@ def plot_histograms(metrics: dict, info: dict, path: Path, *, diverged: np.ndarr
         ax.set_title(f"{info[k].label}" + (f" — {n_inf} runs ∞" if n_inf else ""), fontsize=9)
         ax.ticklabel_format(axis="x", useOffset=False)
         ax.grid(alpha=0.3)
-    for ax in axes.ravel()[len(keys):]:
+    for ax in axes.ravel()[len(keys) :]:
         ax.set_visible(False)
     n_div = int((~keep).sum())
     fig.suptitle((title or "metric histograms") + (f" ({n_div} diverged runs left out)" if n_div else ""))

@@ -37,10 +37,14 @@ def run_tables(out: RunOutcome) -> list[Table]:
     sc = out.scenario
     n = tr.batch
     tables = []
-    keys = [k for k in out.metrics if METRIC_INFO.get(k) and METRIC_INFO[k].kind == "value" and k not in _HIDDEN]
+    keys = [
+        k for k in out.metrics if METRIC_INFO.get(k) and METRIC_INFO[k].kind == "value" and k not in _HIDDEN
+    ]
     div = tr.diverged
     if n == 1:
-        t = Table(title=f"{sc.title} — run {int(tr.run_index[0])}, seed {tr.seed}", columns=["metric", "value"])
+        t = Table(
+            title=f"{sc.title} — run {int(tr.run_index[0])}, seed {tr.seed}", columns=["metric", "value"]
+        )
         t.records = []
         for k in keys:
             v = float(out.metrics[k][0])
@@ -64,12 +68,21 @@ def run_tables(out: RunOutcome) -> list[Table]:
             info = METRIC_INFO[k]
             f = lambda v, k=k: _value(k, v)  # noqa: E731
             ci = f"{f(s.mean)} [{f(s.ci95_low)}, {f(s.ci95_high)}]"
-            t.add(_label(k), ci, fmt_number(s.std * info.scale), f(s.p5), f(s.p50), f(s.p95),
-                  f"{f(s.worst)} (#{s.worst_run})")
+            t.add(
+                _label(k),
+                ci,
+                fmt_number(s.std * info.scale),
+                f(s.p5),
+                f(s.p50),
+                f(s.p95),
+                f"{f(s.worst)} (#{s.worst_run})",
+            )
             t.records.append({"metric": k, **{f: getattr(s, f) for f in s.__dataclass_fields__}})
         if div.any():
             idx = tr.run_index[div]
-            shown = ", ".join(f"#{i} at {a:.2f} s" for i, a in zip(idx[:8], tr.diverged_at[div][:8], strict=False))
+            shown = ", ".join(
+                f"#{i} at {a:.2f} s" for i, a in zip(idx[:8], tr.diverged_at[div][:8], strict=False)
+            )
             more = f" and {idx.size - 8} more" if idx.size > 8 else ""
             t.notes.append(f"{idx.size} of {n} runs diverged (left out of the statistics): {shown}{more}")
     tables.append(t)
@@ -90,8 +103,16 @@ def run_tables(out: RunOutcome) -> list[Table]:
         frac = f"{ps.n_pass}/{ps.n}" if n > 1 else ("yes" if ok else "NO")
         interval = f"{100 * ps.low:.1f}–{100 * ps.high:.1f} %" if n > 1 else ""
         c.add(label, limits.get(name, ""), frac, interval, style=None if ok else "red")
-        c.records.append({"criterion": name, "n": ps.n, "n_pass": ps.n_pass, "fraction": ps.fraction,
-                          "wilson_low": ps.low, "wilson_high": ps.high})
+        c.records.append(
+            {
+                "criterion": name,
+                "n": ps.n,
+                "n_pass": ps.n_pass,
+                "fraction": ps.fraction,
+                "wilson_low": ps.low,
+                "wilson_high": ps.high,
+            }
+        )
     c.notes.append(CAUTION)
     tables.append(c)
     return tables

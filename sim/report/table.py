@@ -49,7 +49,7 @@ def fmt_number(x: float, digits: int = 3, inf_text: str = "∞") -> str:
         return inf_text if x > 0 else f"-{inf_text}"
     if x == 0:
         return "0"
-    if abs(x) >= 10 ** digits or abs(x) < 1e-3:
+    if abs(x) >= 10**digits or abs(x) < 1e-3:
         return f"{x:.{digits - 1}e}"
     return f"{x:.{digits}g}" if abs(x) >= 1 else f"{x:.{digits}f}".rstrip("0").rstrip(".")
 
@@ -84,7 +84,11 @@ def render(tables: list[Table], fmt: str, console=None) -> str | None:
     if fmt == "json":
         out = []
         for t in tables:
-            recs = t.records if t.records is not None else [dict(zip(t.columns, r, strict=False)) for r in t.rows]
+            recs = (
+                t.records
+                if t.records is not None
+                else [dict(zip(t.columns, r, strict=False)) for r in t.rows]
+            )
             out.append({"title": t.title, "rows": recs, "notes": t.notes})
         return json.dumps(out, indent=2, ensure_ascii=False, default=_json_default) + "\n"
     if fmt == "md":

@@ -46,8 +46,9 @@ class TurbulenceCheck:
     max_db_error: dict[str, float]
 
 
-def check_turbulence(params: DrydenParams, *, dt: float = 0.01, duration_s: float = 600.0,
-                     runs: int = 8, seed: int = 1) -> TurbulenceCheck:
+def check_turbulence(
+    params: DrydenParams, *, dt: float = 0.01, duration_s: float = 600.0, runs: int = 8, seed: int = 1
+) -> TurbulenceCheck:
     """Simulate ``runs`` records of ``duration_s`` and compare with the spec."""
     from scipy.signal import welch
 
@@ -71,29 +72,41 @@ def check_turbulence(params: DrydenParams, *, dt: float = 0.01, duration_s: floa
     psd_a = analytic_psd(params, omega)
     lo, hi = 5 * omega[1], (math.pi / dt) / 3
     band = (omega >= lo) & (omega <= hi)
-    err = {ch: float(np.max(np.abs(10 * np.log10(psd_s[ch][band] / psd_a[ch][band]))))
-           for ch in CHANNELS}
-    return TurbulenceCheck(params, dt, runs, duration_s, spec, sample, se, omega, psd_s, psd_a,
-                           (lo, hi), err)
+    err = {ch: float(np.max(np.abs(10 * np.log10(psd_s[ch][band] / psd_a[ch][band])))) for ch in CHANNELS}
+    return TurbulenceCheck(params, dt, runs, duration_s, spec, sample, se, omega, psd_s, psd_a, (lo, hi), err)
 
 
 def turbulence_table(chk: TurbulenceCheck) -> Table:
     p = chk.params
     t = Table(
-        title=(f"Dryden turbulence (MIL-F-8785C): V = {p.airspeed_mps:.3g} m/s, b = {p.span_m:.3g} m, "
-               f"σ_v = {p.sigma_v_mps:.3g} m/s, σ_w = {p.sigma_w_mps:.3g} m/s, "
-               f"L_v = {p.length_v_m:.4g} m, L_w = {p.length_w_m:.4g} m"),
+        title=(
+            f"Dryden turbulence (MIL-F-8785C): V = {p.airspeed_mps:.3g} m/s, b = {p.span_m:.3g} m, "
+            f"σ_v = {p.sigma_v_mps:.3g} m/s, σ_w = {p.sigma_w_mps:.3g} m/s, "
+            f"L_v = {p.length_v_m:.4g} m, L_w = {p.length_w_m:.4g} m"
+        ),
         columns=["channel", "specified σ", "sample σ", "ratio", "PSD max error (dB)"],
     )
     t.records = []
     for ch in CHANNELS:
         unit, scale = _UNITS[ch]
         ratio = chk.sigma_sample[ch] / chk.sigma_spec[ch] if chk.sigma_spec[ch] > 0 else math.nan
-        t.add(ch, f"{fmt_number(chk.sigma_spec[ch] * scale)} {unit}", f"{fmt_number(chk.sigma_sample[ch] * scale)} {unit}",
-              f"{ratio:.3f}", f"{chk.max_db_error[ch]:.2f}")
-        t.records.append({"channel": ch, "sigma_spec_si": chk.sigma_spec[ch], "sigma_sample_si": chk.sigma_sample[ch],
-                          "ratio": ratio, "sigma_standard_error_si": chk.sigma_se[ch],
-                          "psd_max_error_db": chk.max_db_error[ch]})
+        t.add(
+            ch,
+            f"{fmt_number(chk.sigma_spec[ch] * scale)} {unit}",
+            f"{fmt_number(chk.sigma_sample[ch] * scale)} {unit}",
+            f"{ratio:.3f}",
+            f"{chk.max_db_error[ch]:.2f}",
+        )
+        t.records.append(
+            {
+                "channel": ch,
+                "sigma_spec_si": chk.sigma_spec[ch],
+                "sigma_sample_si": chk.sigma_sample[ch],
+                "ratio": ratio,
+                "sigma_standard_error_si": chk.sigma_se[ch],
+                "psd_max_error_db": chk.max_db_error[ch],
+            }
+        )
     t.notes.append(
         f"{chk.runs} records of {chk.duration_s:g} s at dt = {chk.dt:g} s; PSD compared over "
         f"{chk.band[0]:.3g}–{chk.band[1]:.3g} rad/s (Welch estimate, one-sided in ω)."
