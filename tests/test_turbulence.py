@@ -172,7 +172,7 @@ def test_roll_filter_is_unit_consistent():
 def test_spatial_spectrum_form_agrees():
     # MIL-F-8785C writes Φ_p(Ω) = (σ_w²/L_w) 0.8 (π L_w/(4b))^(1/3) / (1 + (4bΩ/π)²) in spatial
     # frequency Ω (rad/m) and Φ_v(Ω) = σ_v² (L_v/π)(1 + 3 L_v²Ω²)/(1 + L_v²Ω²)²; temporal
-    # spectra are Φ(ω) = Φ(Ω = ω/V)/V (frozen field). Independent transcription.
+    # spectra are Φ(ω) = Φ(Ω = ω/V)/V (frozen field). Written out independently of sim.turbulence.
     p = PSD_PARAMS
     w = np.logspace(-2, 2, 9)
     om = w / p.airspeed_mps
