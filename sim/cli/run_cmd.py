@@ -6,6 +6,8 @@ import argparse
 import sys
 from pathlib import Path
 
+import numpy as np
+
 from sim.errors import UserInputError
 
 __all__ = ["add_parser", "run", "HEADLINE_METRICS"]
@@ -113,25 +115,34 @@ def run(args: argparse.Namespace) -> int:
     return 0
 
 
+def worst_run(outcome) -> int:
+    """Row of the run to draw: the first diverged run, else the largest RMS error."""
+    tr = outcome.trace
+    if tr.diverged.any():
+        return int(np.argmax(tr.diverged))
+    return int(np.argmax(outcome.metrics["rms_error_rad"]))
+
+
 def _plots(folder: Path, outcome) -> None:
     from sim.metrics import METRIC_INFO
     from sim.report.plots import plot_aileron, plot_bank, plot_envelope, plot_histograms
 
     sc, tr = outcome.scenario, outcome.trace
-    worst = 0
+    worst = worst_run(outcome)
+    which = "" if tr.batch == 1 else " (worst of the set)"
     plot_bank(
         tr,
         folder / "bank.png",
         run=worst,
         bank_limit_rad=sc.criteria.bank_limit_rad,
-        title=f"{sc.title}: bank angle, run {int(tr.run_index[worst])}",
+        title=f"{sc.title}: bank angle, run {int(tr.run_index[worst])}{which}",
     )
     plot_aileron(
         tr,
         folder / "aileron.png",
         run=worst,
         limit_rad=sc.actuator.limit_rad,
-        title=f"{sc.title}: aileron, run {int(tr.run_index[worst])}",
+        title=f"{sc.title}: aileron, run {int(tr.run_index[worst])}{which}",
     )
     if tr.batch > 1:
         plot_envelope(

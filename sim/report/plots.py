@@ -23,6 +23,14 @@ def pyplot():
     return plt
 
 
+def _limit_lines(ax, limit_rad: float, label: str) -> None:
+    """Dotted red lines at ±limit (drawn in degrees), labelled once."""
+    for sign in (1, -1):
+        ax.axhline(
+            sign * limit_rad * _DEG, color="tab:red", lw=0.8, ls=":", label=label if sign == 1 else None
+        )
+
+
 def _invalid_spans(t_ctrl: np.ndarray, valid: np.ndarray) -> list[tuple[float, float]]:
     """Time spans where the newest delivered frame was invalid."""
     bad = ~valid.astype(bool)
@@ -47,14 +55,7 @@ def plot_bank(
     ax.plot(trace.t, trace.bank[run] * _DEG, color="tab:blue", lw=1.6, label="true bank")
     ax.plot(trace.t, trace.bank_cmd[run] * _DEG, color="k", lw=1.0, ls="--", label="command")
     if bank_limit_rad is not None:
-        for s in (1, -1):
-            ax.axhline(
-                s * bank_limit_rad * _DEG,
-                color="tab:red",
-                lw=0.8,
-                ls=":",
-                label="bank limit" if s == 1 else None,
-            )
+        _limit_lines(ax, bank_limit_rad, "bank limit")
     if np.isfinite(trace.diverged_at[run]):
         ax.axvline(trace.diverged_at[run], color="tab:red", lw=1.5, label="diverged")
     ax.set_xlabel("time (s)")
@@ -74,10 +75,7 @@ def plot_aileron(trace: Trace, path: Path, *, run: int = 0, limit_rad: float, ti
         trace.t_ctrl, trace.aileron_cmd[run] * _DEG, where="post", color="tab:gray", lw=0.9, label="command"
     )
     ax.plot(trace.t, trace.aileron[run] * _DEG, color="tab:green", lw=1.4, label="position")
-    for s in (1, -1):
-        ax.axhline(
-            s * limit_rad * _DEG, color="tab:red", lw=0.8, ls=":", label="travel limit" if s == 1 else None
-        )
+    _limit_lines(ax, limit_rad, "travel limit")
     ax.set_xlabel("time (s)")
     ax.set_ylabel("aileron (deg)")
     ax.set_title(title or f"aileron, run {int(trace.run_index[run])}")
@@ -101,14 +99,7 @@ def plot_envelope(trace: Trace, path: Path, *, bank_limit_rad: float | None = No
         ax.plot(trace.t, p[3], color="tab:blue", lw=1.4, label="median")
     ax.plot(trace.t, trace.bank_cmd[0] * _DEG, color="k", ls="--", lw=1.0, label="command")
     if bank_limit_rad is not None:
-        for s in (1, -1):
-            ax.axhline(
-                s * bank_limit_rad * _DEG,
-                color="tab:red",
-                lw=0.8,
-                ls=":",
-                label="bank limit" if s == 1 else None,
-            )
+        _limit_lines(ax, bank_limit_rad, "bank limit")
     n_div = int((~keep).sum())
     ax.set_title(
         title
