@@ -316,8 +316,10 @@ def _margin_table(rep: MarginsReport) -> Table:
     if a is not None:
         t.notes.append(
             f"Analytic: exact delays e^(-jωτ) on the frequency response; Padé order {a.pade_order} "
-            "only for the closed-loop stability flag. Plant: full lateral model, aileron input, rudder "
-            "fixed (rudder loop open); servo lag; servo limits left out."
+            "only for the closed-loop stability flag. Plant: "
+            + ("roll-only model φ/δa" if "beta" not in sc.plant.state_names
+               else "full lateral model, aileron input, rudder fixed (rudder loop open)")
+            + f" ({sc.plant.name}); servo lag; servo limits left out."
         )
     else:
         t.notes.append(f"Analytic: none — controller kind {sc.controller.kind!r} has no linear model here.")

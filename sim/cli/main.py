@@ -28,7 +28,7 @@ COMMANDS = {
 
 class _Parser(argparse.ArgumentParser):
     def error(self, message: str) -> None:  # one line, exit 2
-        self.exit(2, f"rollrig: error: {message} (see rollrig {self.prog.split()[-1]} --help)\n")
+        self.exit(2, f"rollrig: error: {message} (see {self.prog} --help)\n")
 
 
 def build_parser() -> argparse.ArgumentParser:
