@@ -23,6 +23,7 @@ COMMANDS = {
     "fit-sensor": "fit_cmd",
     "make-log": "makelog_cmd",
     "margins": "margins_cmd",
+    "rank-faults": "faults_cmd",
 }
 
 

@@ -1,0 +1,149 @@
+"""``rollrig rank-faults FILE``: which camera fault hurts the loop most."""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from pathlib import Path
+
+from sim.errors import UserInputError
+
+__all__ = ["add_parser", "run", "ranking_table"]
+
+
+def add_parser(sub) -> None:
+    p = sub.add_parser(
+        "rank-faults",
+        help="rank the camera's faults by what each costs the loop",
+        description="Run the scenario's Monte Carlo set with every sensor fault, with each fault removed "
+        "and with each fault alone (same seed: common random numbers), and rank the faults by what "
+        "they cost in one metric.",
+    )
+    p.add_argument("scenario", metavar="FILE", help="scenario file (TOML)")
+    p.add_argument(
+        "--metric",
+        help="metric to rank by, a key of metrics.json "
+        "(default: itae when the command has a step, else rms_error_rad)",
+    )
+    p.add_argument("--runs", type=int, help="Monte Carlo runs per variant (overrides [run] runs)")
+    p.add_argument("--seed", type=int, help="run seed (overrides [run] seed)")
+    p.add_argument("--format", choices=("table", "csv", "json", "md"), default="table")
+    p.add_argument("--out", type=Path, metavar="DIR", help="also write the table and a manifest here")
+    p.add_argument("--force", action="store_true", help="replace an existing output folder")
+    p.add_argument("--allow-code", action="store_true", help="allow a user controller class (runs your code)")
+    p.set_defaults(func=run)
+
+
+def ranking_table(r):
+    from sim.metrics import METRIC_INFO
+    from sim.report import CAUTION
+    from sim.report.table import Table, fmt_number
+
+    info = METRIC_INFO[r.metric]
+    unit = f" ({info.unit})" if info.unit else ""
+    f = lambda v: fmt_number(v * info.scale)  # noqa: E731
+    t = Table(
+        title=f"{r.scenario.title}: what each sensor fault costs in {info.label}{unit}, {r.runs} runs",
+        columns=["rank", "fault", "setting", "cost [95 % CI]", "without it", "it alone"],
+    )
+    t.records = []
+    for i, e in enumerate(r.effects, 1):
+        c = e.cost
+        t.add(
+            i,
+            e.fault.name,
+            e.fault.setting,
+            f"{f(c.mean)} [{f(c.ci95_low)}, {f(c.ci95_high)}]",
+            f(e.without.mean),
+            f(e.alone.mean),
+        )
+        t.records.append(
+            {
+                "rank": i,
+                "fault": e.fault.name,
+                "setting": e.fault.setting,
+                "cost_mean_si": c.mean,
+                "cost_ci95_si": [c.ci95_low, c.ci95_high],
+                "without_mean_si": e.without.mean,
+                "alone_mean_si": e.alone.mean,
+                "pairs_left_out": c.n_diverged,
+            }
+        )
+    t.notes.append(
+        f"every fault: {f(r.every.mean)}{unit}; no sensor fault: {f(r.ideal.mean)}{unit} "
+        "(means over the runs that did not diverge)."
+    )
+    t.notes.append(
+        "cost = per-run (every fault − this one removed), mean with a paired Student-t interval; "
+        "same seed for every variant, so other faults' draws and turbulence are identical."
+    )
+    left = sum(e.cost.n_diverged for e in r.effects)
+    if left:
+        t.notes.append(f"{left} run pairs left out where a run diverged or the metric was infinite.")
+    t.notes.append(CAUTION)
+    return t
+
+
+def run(args: argparse.Namespace) -> int:
+    from sim.analysis.fault_ranking import active_faults, rank_faults
+    from sim.metrics import METRIC_INFO
+    from sim.report.table import render
+    from sim.scenario import load_scenario
+
+    values = sorted(k for k, v in METRIC_INFO.items() if v.kind == "value")
+    if args.metric is not None and args.metric not in values:
+        raise UserInputError(f"--metric {args.metric}: allowed: {', '.join(values)}")
+    sc = load_scenario(args.scenario)
+    if args.metric is None:
+        from sim.runner import metric_spec
+
+        has_step = any(abs(seg.size_rad) > 1e-12 for seg in metric_spec(sc).steps)
+        args.metric = "itae" if has_step else "rms_error_rad"
+    changes = {}
+    if args.runs is not None:
+        if not 2 <= args.runs <= 100_000:
+            raise UserInputError(
+                f"--runs {args.runs}: allowed: 2 ≤ runs ≤ 100000 (a paired interval needs 2)"
+            )
+        changes["runs"] = args.runs
+    if args.seed is not None:
+        if args.seed < 0:
+            raise UserInputError(f"--seed {args.seed}: allowed: seed ≥ 0")
+        changes["seed"] = args.seed
+    if changes:
+        sc = sc.with_run(**changes)
+    if not active_faults(sc):
+        raise UserInputError(f"{args.scenario}: [sensor] has no faults to rank (an ideal camera)")
+    if args.out is not None:
+        from sim.report.outdir import check_out_dir
+
+        check_out_dir(args.out, args.force)
+    try:
+        ranking = rank_faults(sc, args.metric, allow_code=args.allow_code)
+    except KeyError:
+        raise UserInputError(
+            f"--metric {args.metric}: not computed for this scenario's command profile "
+            "(step metrics need a step; try rms_error_rad)"
+        ) from None
+    table = ranking_table(ranking)
+    text = render([table], args.format)
+    if text is not None:
+        sys.stdout.write(text)
+    if args.out is not None:
+        from sim.report.outdir import manifest, output_folder, write_json
+
+        with output_folder(args.out, force=args.force) as tmp:
+            (tmp / "faults.md").write_text(render([table], "md"))
+            write_json(tmp / "faults.json", table.records)
+            write_json(
+                tmp / "manifest.json",
+                manifest(
+                    scenario_path=sc.path,
+                    scenario_sha256=sc.sha256,
+                    seed=sc.run.seed,
+                    runs=range(sc.run.runs),
+                    command_line=["rollrig", "rank-faults", args.scenario],
+                ),
+            )
+        print(f"wrote {args.out}/", file=sys.stderr if args.format != "table" else sys.stdout)
+    return 0
