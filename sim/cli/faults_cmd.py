@@ -86,6 +86,7 @@ def ranking_table(r):
 
 def run(args: argparse.Namespace) -> int:
     from sim.analysis.fault_ranking import active_faults, rank_faults
+    from sim.cli.common import apply_run_overrides
     from sim.metrics import METRIC_INFO
     from sim.report.table import render
     from sim.scenario import load_scenario
@@ -99,19 +100,7 @@ def run(args: argparse.Namespace) -> int:
 
         has_step = any(abs(seg.size_rad) > 1e-12 for seg in metric_spec(sc).steps)
         args.metric = "itae" if has_step else "rms_error_rad"
-    changes = {}
-    if args.runs is not None:
-        if not 2 <= args.runs <= 100_000:
-            raise UserInputError(
-                f"--runs {args.runs}: allowed: 2 ≤ runs ≤ 100000 (a paired interval needs 2)"
-            )
-        changes["runs"] = args.runs
-    if args.seed is not None:
-        if args.seed < 0:
-            raise UserInputError(f"--seed {args.seed}: allowed: seed ≥ 0")
-        changes["seed"] = args.seed
-    if changes:
-        sc = sc.with_run(**changes)
+    sc = apply_run_overrides(sc, args.runs, args.seed, min_runs=2, why=" (a paired interval needs 2)")
     if not active_faults(sc):
         raise UserInputError(f"{args.scenario}: [sensor] has no faults to rank (an ideal camera)")
     if args.out is not None:

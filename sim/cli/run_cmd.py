@@ -59,23 +59,13 @@ def add_parser(sub) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
+    from sim.cli.common import apply_run_overrides
     from sim.report.outdir import check_out_dir, default_out_dir, output_folder
     from sim.report.table import render
     from sim.runner import run_scenario
     from sim.scenario import load_scenario
 
-    sc = load_scenario(args.scenario)
-    changes = {}
-    if args.runs is not None:
-        if not 1 <= args.runs <= 100_000:
-            raise UserInputError(f"--runs {args.runs}: allowed: 1 ≤ runs ≤ 100000")
-        changes["runs"] = args.runs
-    if args.seed is not None:
-        if args.seed < 0:
-            raise UserInputError(f"--seed {args.seed}: allowed: seed ≥ 0")
-        changes["seed"] = args.seed
-    if changes:
-        sc = sc.with_run(**changes)
+    sc = apply_run_overrides(load_scenario(args.scenario), args.runs, args.seed)
     if args.replay is not None:
         if not 0 <= args.replay < sc.run.runs:
             raise UserInputError(

@@ -25,6 +25,7 @@ from sim import __version__
 from sim.errors import UserInputError
 
 from . import CAUTION
+from .table import jsonable
 
 __all__ = ["default_out_dir", "check_out_dir", "output_folder", "write_json", "manifest"]
 
@@ -73,30 +74,9 @@ def output_folder(path: Path, force: bool = False):
         shutil.rmtree(old, ignore_errors=True)
 
 
-def _jsonable(obj: Any) -> Any:
-    if isinstance(obj, dict):
-        return {str(k): _jsonable(v) for k, v in obj.items()}
-    if isinstance(obj, (list, tuple)):
-        return [_jsonable(v) for v in obj]
-    if isinstance(obj, np.ndarray):
-        return _jsonable(obj.tolist())
-    if isinstance(obj, (np.floating, float)):
-        f = float(obj)
-        if np.isnan(f):
-            return None
-        if np.isinf(f):
-            return "inf" if f > 0 else "-inf"
-        return f
-    if isinstance(obj, (np.integer,)):
-        return int(obj)
-    if isinstance(obj, (np.bool_,)):
-        return bool(obj)
-    return obj
-
-
 def write_json(path: Path, data: Any) -> None:
     """JSON with infinities written as the strings ``"inf"``/``"-inf"`` (never NaN)."""
-    Path(path).write_text(json.dumps(_jsonable(data), indent=2, ensure_ascii=False) + "\n")
+    Path(path).write_text(json.dumps(jsonable(data), indent=2, ensure_ascii=False) + "\n")
 
 
 def manifest(*, scenario_path: str, scenario_sha256: str, seed: int, runs: list[int] | range,

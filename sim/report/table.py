@@ -13,7 +13,7 @@ import math
 from dataclasses import dataclass, field
 from typing import Any
 
-__all__ = ["Table", "render", "FORMATS", "fmt_number"]
+__all__ = ["Table", "render", "FORMATS", "fmt_number", "jsonable"]
 
 FORMATS = ("table", "csv", "json", "md")
 
@@ -90,7 +90,7 @@ def render(tables: list[Table], fmt: str, console=None) -> str | None:
                 else [dict(zip(t.columns, r, strict=False)) for r in t.rows]
             )
             out.append({"title": t.title, "rows": recs, "notes": t.notes})
-        return json.dumps(out, indent=2, ensure_ascii=False, default=_json_default) + "\n"
+        return json.dumps(jsonable(out), indent=2, ensure_ascii=False, default=str) + "\n"
     if fmt == "md":
         lines = []
         for t in tables:
@@ -104,14 +104,31 @@ def render(tables: list[Table], fmt: str, console=None) -> str | None:
     raise ValueError(f"unknown format {fmt!r}")
 
 
-def _json_default(obj: Any) -> Any:
-    try:
-        import numpy as np
+def jsonable(obj: Any) -> Any:
+    """Plain JSON values: numpy scalars and arrays unwrapped, infinities as ``"inf"``/``"-inf"``.
 
-        if isinstance(obj, np.generic):
-            return obj.item()
-        if isinstance(obj, np.ndarray):
-            return obj.tolist()
-    except ImportError:  # pragma: no cover
-        pass
-    return str(obj)
+    Standard JSON has no infinity (``json.dumps`` would write ``Infinity``,
+    which strict parsers reject); a metric that was never reached is written
+    as the string ``"inf"``, and ``float("inf")`` reads it back. NaN, which
+    no metric should produce, becomes ``null``.
+    """
+    import numpy as np
+
+    if isinstance(obj, dict):
+        return {str(k): jsonable(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [jsonable(v) for v in obj]
+    if isinstance(obj, np.ndarray):
+        return jsonable(obj.tolist())
+    if isinstance(obj, (np.floating, float)):
+        f = float(obj)
+        if math.isnan(f):
+            return None
+        if math.isinf(f):
+            return "inf" if f > 0 else "-inf"
+        return f
+    if isinstance(obj, np.integer):
+        return int(obj)
+    if isinstance(obj, np.bool_):
+        return bool(obj)
+    return obj

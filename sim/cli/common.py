@@ -1,0 +1,25 @@
+"""Pieces the sub-commands share."""
+
+from __future__ import annotations
+
+from sim.errors import UserInputError
+from sim.scenario import Scenario
+
+__all__ = ["apply_run_overrides", "MAX_RUNS"]
+
+MAX_RUNS = 100_000
+
+
+def apply_run_overrides(sc: Scenario, runs: int | None, seed: int | None, *, min_runs: int = 1,
+                        why: str = "") -> Scenario:
+    """The scenario with ``--runs`` and ``--seed`` applied (range-checked)."""
+    changes = {}
+    if runs is not None:
+        if not min_runs <= runs <= MAX_RUNS:
+            raise UserInputError(f"--runs {runs}: allowed: {min_runs} ≤ runs ≤ {MAX_RUNS}{why}")
+        changes["runs"] = runs
+    if seed is not None:
+        if seed < 0:
+            raise UserInputError(f"--seed {seed}: allowed: seed ≥ 0")
+        changes["seed"] = seed
+    return sc.with_run(**changes) if changes else sc
