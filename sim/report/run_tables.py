@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 
 from sim.metrics import METRIC_INFO
-from sim.runner import CRITERIA_LABELS, RunOutcome
+from sim.runner import CRITERIA_LABELS, RunOutcome, metric_spec
 
 from . import CAUTION
 from .table import Table, fmt_number
@@ -85,6 +85,12 @@ def run_tables(out: RunOutcome) -> list[Table]:
             )
             more = f" and {idx.size - 8} more" if idx.size > 8 else ""
             t.notes.append(f"{idx.size} of {n} runs diverged (left out of the statistics): {shown}{more}")
+    steps = [seg for seg in metric_spec(sc).steps if abs(seg.size_rad) > 1e-12]
+    if len(steps) > 1:
+        t.notes.append(
+            f"Step metrics (rise, settling, overshoot, steady-state error, peak, ITAE) are the worst "
+            f"over the {len(steps)} commanded steps; tracking metrics cover the whole run."
+        )
     tables.append(t)
 
     c = Table(title="criteria", columns=["criterion", "limit", "passed", "95 % interval"])
