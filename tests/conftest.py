@@ -11,13 +11,12 @@ from __future__ import annotations
 import copy
 import datetime as _dt
 import math
+import os
 import re
 import tomllib
 from collections.abc import Callable
 from pathlib import Path
 from typing import Any
-
-import os
 
 import pytest
 from hypothesis import settings
