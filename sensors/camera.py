@@ -286,32 +286,26 @@ def read_frames(
 class CameraReader:
     """The stateful shell the stepping core drives.
 
-    Call :meth:`reset` once per batch, :meth:`capture` at every base step in
-    :attr:`captures`, and :meth:`read` at every controller tick.
-
-    Two ways to see the true bank:
-
-    * *record mode*: the driver sets :attr:`history` to its
-      ``(n_steps + 1, batch)`` record of true bank (row ``k`` written by the
-      end of step ``k``). Then :attr:`captures` is empty and nothing runs per
-      base step: at a tick, the newest delivered frame's reading is computed
-      from the bank recorded at its capture step (frames are delivered after
-      they are captured, so that row is always written). The stages are pure
-      functions of that bank and the frame's up-front draws, so the result is
-      the same as capturing eagerly. Exposure averaging needs this mode.
-    * *capture mode* (no history): :meth:`capture` evaluates the frames due at
-      each step and stores them.
+    Call :meth:`reset` once per batch, handing it the driver's
+    ``(n_steps + 1, batch)`` record of true bank (row ``k`` written by the end
+    of step ``k``), then :meth:`read` at every controller tick. Nothing runs
+    per base step: at a tick, the newest delivered frame's reading is
+    computed from the bank recorded at its capture step (a frame is delivered
+    after it is captured, so that row is always written). The stages are pure
+    functions of that bank and the frame's up-front draws, so evaluating a
+    frame late gives the same reading as evaluating it at capture; exposure
+    averaging reads the rows before the capture step.
     """
 
     def __init__(self, cfg: CameraConfig, dt: float) -> None:
         self.cfg = cfg
         self.dt = float(dt)
-        self.history: np.ndarray | None = None
 
     def reset(
-        self, n_steps: int, tick_steps: np.ndarray, batch: int, rng_for: RngFor
+        self, n_steps: int, tick_steps: np.ndarray, batch: int, rng_for: RngFor, history: np.ndarray
     ) -> None:
         cfg = self.cfg
+        self.history = history
         n = n_frames_for(cfg.frame_rate_hz, self.dt, n_steps)
         draws = frame_draws(cfg, n, rng_for)
         latency = _per_run(cfg.latency_s, batch, "latency_s")
@@ -321,7 +315,6 @@ class CameraReader:
             latency_extra_s=None if "latency" not in draws else cfg.latency_jitter_s * draws["latency"],
         )
         self.n_frames, self.batch = n, batch
-        self._captures = None  # built on first use (not needed in record mode)
         self._latest = self.plan.latest_delivered(np.asarray(tick_steps))
         # frame-major (n + 1, batch) arrays; the spare last row (index -1)
         # stands for "no frame yet" and is never valid
@@ -341,9 +334,6 @@ class CameraReader:
         self._centres = (None if cfg.classifier is None
                          else stages.class_centres(cfg.classifier.class_width_rad, cfg.range_rad))
         self._weights = stages.exposure_weights(cfg.exposure_s, self.dt)
-        self.values = np.zeros((n + 1, batch))
-        self.valid = np.zeros((n + 1, batch), dtype=bool)
-        self.confidence = np.zeros((n + 1, batch)) if cfg.classifier is not None else None
         self.capture_time = np.full((n + 1, batch), -np.inf)
         self.capture_time[:n] = self.plan.capture_step.T * self.dt
         self._last_value = np.zeros(batch)
@@ -352,68 +342,36 @@ class CameraReader:
         self._tick = 0
         self._prev_idx = None
 
-    @property
-    def captures(self) -> dict:
-        """Base steps at which :meth:`capture` must be called (empty in record mode)."""
-        if self.history is not None:
-            return {}
-        if self._captures is None:
-            self._captures = self.plan.captures_by_step()
-        return self._captures
-
-    def _evaluate(self, frames, rows, bank: np.ndarray | None = None):
-        """Reading, validity and confidence of frames (given bank, or from history)."""
+    def _evaluate(self, frames, rows):
+        """Reading, validity and confidence of frames, from the bank record."""
         w = self._weights
-        if bank is None:
-            cap = self._cap_step[frames, rows]
-            if w.size == 1:
-                bank = self.history[cap, rows]
-            else:  # one gather per base step of the exposure (few), oldest first
-                bank = w[-1] * self.history[cap, rows]
-                for i in range(1, w.size):
-                    bank += w[-1 - i] * self.history[np.maximum(cap - i, 0), rows]
+        cap = self._cap_step[frames, rows]
+        if w.size == 1:
+            bank = self.history[cap, rows]
+        else:  # one gather per base step of the exposure (few), oldest first
+            bank = w[-1] * self.history[cap, rows]
+            for i in range(1, w.size):
+                bank += w[-1 - i] * self.history[np.maximum(cap - i, 0), rows]
         off = self._offset if np.isscalar(self._offset) else self._offset[frames, rows]
         value, ok, conf = read_frames(bank, self.cfg, off, self._centres)
         ok &= self._kept[frames, rows]
         return value, ok, conf
-
-    def capture(self, k: int, bank: np.ndarray) -> None:
-        """Capture the frames due at base step ``k`` from true bank (batch,).
-
-        Does nothing in record mode (readings are computed at the ticks).
-        """
-        if self.history is not None:
-            return
-        hit = self.captures.get(k)
-        if hit is None:
-            return
-        rows, frames = hit
-        if self._weights.size > 1:
-            raise RuntimeError("exposure_s > 0 needs CameraReader.history (the true-bank record)")
-        value, ok, conf = self._evaluate(frames, rows, bank[rows])
-        self.values[frames, rows] = value
-        self.valid[frames, rows] = ok
-        if conf is not None:
-            self.confidence[frames, rows] = conf
 
     def read(self, t: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """(bank, valid, age) at the next controller tick, time ``t``."""
         idx = self._latest[self._tick]
         self._tick += 1
         rows = self._rows
-        if self.history is not None:
-            prev = self._prev_idx
-            if prev is None:
-                value, valid, _ = self._evaluate(idx, rows)
-            elif np.array_equal(idx, prev):  # same frames as the last tick
-                value, valid = self._prev_value, self._prev_valid
-            else:  # evaluate only the runs whose newest frame changed
-                new = np.flatnonzero(idx != prev)
-                value, valid = self._prev_value.copy(), self._prev_valid.copy()
-                value[new], valid[new], _ = self._evaluate(idx[new], new)
-            self._prev_idx, self._prev_value, self._prev_valid = idx, value, valid
-        else:
-            value, valid = self.values[idx, rows], self.valid[idx, rows]
+        prev = self._prev_idx
+        if prev is None:
+            value, valid, _ = self._evaluate(idx, rows)
+        elif np.array_equal(idx, prev):  # same frames as the last tick
+            value, valid = self._prev_value, self._prev_valid
+        else:  # evaluate only the runs whose newest frame changed
+            new = np.flatnonzero(idx != prev)
+            value, valid = self._prev_value.copy(), self._prev_valid.copy()
+            value[new], valid[new], _ = self._evaluate(idx[new], new)
+        self._prev_idx, self._prev_value, self._prev_valid = idx, value, valid
         self._last_value = np.where(valid, value, self._last_value)
         self._last_time = np.where(valid, self.capture_time[idx, rows], self._last_time)
         return self._last_value, valid, t - self._last_time
@@ -421,13 +379,9 @@ class CameraReader:
     def frame_readings(self) -> tuple[np.ndarray, np.ndarray, np.ndarray | None]:
         """Every frame's reading, validity and confidence, ``(batch, n_frames)``.
 
-        In record mode they are computed from the history (call after the
-        run); frames captured after the last recorded step are invalid.
+        Computed from the bank record (call after the run); frames captured
+        after the last recorded step are invalid.
         """
-        n = self.n_frames
-        if self.history is None:
-            conf = None if self.confidence is None else self.confidence[:n].T.copy()
-            return self.values[:n].T.copy(), self.valid[:n].T.copy(), conf
-        frames = np.arange(n)[:, None]
+        frames = np.arange(self.n_frames)[:, None]
         value, ok, conf = self._evaluate(frames, self._rows[None, :])
         return value.T.copy(), ok.T.copy(), None if conf is None else conf.T.copy()

@@ -43,28 +43,6 @@ class FramePlan:
     def n_frames(self) -> int:
         return int(self.capture_step.shape[1])
 
-    def captures_by_step(self) -> dict[int, tuple[np.ndarray | slice, np.ndarray | int]]:
-        """Map base step -> (rows, frame indices) captured at that step."""
-        cap = self.capture_step
-        batch, n = cap.shape
-        out: dict[int, tuple[np.ndarray | slice, np.ndarray | int]] = {}
-        if np.all(cap == cap[:1]):  # every run captures on the same steps
-            steps = cap[0]
-            if n == 0 or np.all(np.diff(steps) > 0):
-                for f, k in enumerate(steps):
-                    out[int(k)] = (slice(None), f)
-                return out
-        steps = cap.ravel()
-        order = np.argsort(steps, kind="stable")
-        rows = np.repeat(np.arange(batch), n)[order]
-        frames = np.tile(np.arange(n), batch)[order]
-        uniq, start = np.unique(steps[order], return_index=True)
-        bounds = np.append(start, steps.size)
-        for j, k in enumerate(uniq):
-            sl = slice(bounds[j], bounds[j + 1])
-            out[int(k)] = (rows[sl], frames[sl])
-        return out
-
     def latest_delivered(self, steps: np.ndarray) -> np.ndarray:
         """Index of the newest frame delivered at or before each step.
 

@@ -168,8 +168,9 @@ class Stepper:
         self.seed, self.runs, self.batch = int(seed), runs, batch
         rng_for = lambda name: run_generators(seed, runs, name)  # noqa: E731
         n = s.n_steps
+        self.rec_bank = np.empty((n + 1, batch))  # also the camera's view of the true bank
         self.camera = CameraReader(s.camera, s.dt)
-        self.camera.reset(n, s.tick_steps, batch, rng_for)
+        self.camera.reset(n, s.tick_steps, batch, rng_for, history=self.rec_bank)
         self.gyro = RateGyro(s.gyro, s.dt) if s.gyro is not None else None
         if self.gyro is not None:
             self.gyro.reset(n, batch, rng_for)
@@ -195,8 +196,6 @@ class Stepper:
         self.diverged_at = np.full(batch, np.inf)
 
         n_ticks = len(s.tick_steps)
-        self.rec_bank = np.empty((n + 1, batch))
-        self.camera.history = self.rec_bank  # exposure averaging reads it
         self.rec_rate = np.empty((n + 1, batch))
         self.rec_ail = np.empty((n + 1, batch))
         self.rec_states = np.empty((n + 1, batch, s.plant.n_states)) if record_states else None
@@ -246,17 +245,11 @@ class Stepper:
         self.rec_meas[j], self.rec_valid[j], self.rec_age[j], self.rec_cmd[j] = bank, valid, age, u
         self.tick += 1
 
-        m, nx, phi, p = self._m, self._nx, self._phi, self._p
-        dt = s.dt
+        m, nx, phi = self._m, self._nx, self._phi
         lim = s.actuator.limit_rad
-        max_change = s.actuator.rate_limit_rad_s * dt
+        max_change = s.actuator.rate_limit_rad_s * s.dt
         stop = min(self.k + s.ctrl_every, s.n_steps)
         frozen = not self.alive.all()
-        captures, camera = self.camera.captures, self.camera
-        gyro = self.gyro
-        rec_bank, rec_rate, rec_ail, rec_states = (
-            self.rec_bank, self.rec_rate, self.rec_ail, self.rec_states
-        )
         X, Y = self._X, self._Y
         X[nx + 1] = u
         Y[nx + 1] = u
@@ -280,18 +273,10 @@ class Stepper:
             if frozen:
                 Y[: nx + 1] = np.where(self.alive, Y[: nx + 1], X[: nx + 1])
             X, Y = Y, X
-            j = k + 1
-            bank = X[phi]
-            rec_bank[j] = bank
-            rec_rate[j] = X[p]
-            rec_ail[j] = X[nx]
-            if rec_states is not None:
-                rec_states[j] = X[:nx].T
-            if j in captures:
-                camera.capture(j, bank)
-            if gyro is not None:
-                gyro.sample(j, X[p])
-        self._X, self._Y, self.k = X, Y, stop
+            self._X, self._Y = X, Y
+            self._record(k + 1)
+            self._sense(k + 1)
+        self.k = stop
         runaway = self.alive & ~(np.abs(X[phi]) < s.divergence_rad)
         if runaway.any():
             self._diverge(runaway)
@@ -347,7 +332,7 @@ class Stepper:
             self.rec_states[k] = X[: self._nx].T
 
     def _sense(self, k: int) -> None:
-        self.camera.capture(k, self._X[self._phi])
+        """Sensors sampled per base step: the gyro (the camera reads the bank record)."""
         if self.gyro is not None:
             self.gyro.sample(k, self._X[self._p])
 

@@ -20,25 +20,17 @@ def _rng_for(seed: int, batch: int):
     return lambda name: run_generators(seed, range(batch), name)
 
 
-def _drive(cfg: CameraConfig, bank_fn, *, dt=0.001, n_steps=20_000, batch=4, seed=1, every=1,
-           record=True):
+def _drive(cfg: CameraConfig, bank_fn, *, dt=0.001, n_steps=20_000, batch=4, seed=1, every=1):
     """Run the reader alone against a known bank history; return readings at ticks."""
     cam = CameraReader(cfg, dt)
     ticks = np.arange(0, n_steps, every)
-    cam.reset(n_steps, ticks, batch, _rng_for(seed, batch))
     t = np.arange(n_steps + 1) * dt
     hist = np.repeat(bank_fn(t)[:, None], batch, axis=1)
-    if record:
-        cam.history = hist
+    cam.reset(n_steps, ticks, batch, _rng_for(seed, batch), history=hist)
     out_b, out_v, out_a = [], [], []
-    ti = 0
-    for k in range(n_steps + 1):
-        if k in cam.captures:
-            cam.capture(k, hist[k])
-        if ti < ticks.size and ticks[ti] == k:
-            b, v, a = cam.read(k * dt)
-            out_b.append(b.copy()), out_v.append(v.copy()), out_a.append(a.copy())
-            ti += 1
+    for k in ticks:
+        b, v, a = cam.read(k * dt)
+        out_b.append(b.copy()), out_v.append(v.copy()), out_a.append(a.copy())
     return cam, ticks * dt, np.array(out_b), np.array(out_v), np.array(out_a)
 
 
@@ -56,7 +48,7 @@ def test_delivery_buffer_mean_delay_is_latency_plus_half_period():
 def test_delivery_in_order_with_random_latency():
     cfg = CameraConfig(frame_rate_hz=30.0, latency_s=0.02, latency_jitter_s=0.03)
     cam = CameraReader(cfg, 0.001)
-    cam.reset(20_000, np.arange(20_000), 8, _rng_for(2, 8))
+    cam.reset(20_000, np.arange(20_000), 8, _rng_for(2, 8), history=np.zeros((20_001, 8)))
     d, c = cam.plan.deliver_step, cam.plan.capture_step
     assert np.all(np.diff(d, axis=1) >= 0)  # in order
     extra = (d - c) * 0.001 - 0.02
@@ -86,18 +78,19 @@ def test_per_run_latency_and_dropout_arrays():
     assert_allclose(frame_valid, 1.0 - drop, atol=0.02)  # 2500 frames: SE ≤ 1 %
     # a run of the batch with per-run values equals that run alone with floats
     solo = CameraReader(CameraConfig(frame_rate_hz=50.0, latency_s=0.05, dropout_prob=0.2), 0.002)
-    solo.reset(1000, np.arange(0, 1000, 10), 1, lambda name: run_generators(1, [1], name))
+    solo.reset(1000, np.arange(0, 1000, 10), 1, lambda name: run_generators(1, [1], name),
+               history=np.zeros((1001, 1)))
     assert_array_equal(solo.plan.deliver_step[0], cam.plan.deliver_step[1][: solo.plan.n_frames])
     with pytest.raises(ValueError):
         CameraReader(CameraConfig(dropout_prob=np.array([0.1, 0.2])), 0.01).reset(
-            100, np.arange(100), 3, _rng_for(1, 3))
+            100, np.arange(100), 3, _rng_for(1, 3), history=np.zeros((101, 3)))
 
 
 def test_per_run_burst_loss_rate():
     rates = np.array([0.05, 0.3])
     cfg = CameraConfig(frame_rate_hz=100.0, bursts=BurstConfig(loss_rate=rates, mean_burst_frames=4.0))
     cam = CameraReader(cfg, 0.01)
-    cam.reset(100_000, np.arange(0, 100_000, 2), 2, _rng_for(4, 2))
+    cam.reset(100_000, np.arange(0, 100_000, 2), 2, _rng_for(4, 2), history=np.zeros((100_001, 2)))
     lost = ~cam._kept
     # ~100 000 frames, burst variance factor (1+λ)/(1−λ) ≤ 8: SE ≤ 0.5 % abs
     assert_allclose(lost.mean(axis=0), rates, atol=0.02)
@@ -132,21 +125,31 @@ def test_classifier_reader_confidence_and_saturation():
     assert np.all((conf > 0) & (conf <= 1))
 
 
-def test_record_mode_equals_capture_mode():
-    # Readings computed at the ticks from the bank record must equal readings
-    # captured eagerly at each frame (the stages are pure functions).
+def test_readings_at_ticks_equal_every_frame_evaluated_at_once():
+    # The reader evaluates only the newest frame of each run at a tick; a
+    # second method evaluates every frame in one vectorised call. The stages
+    # are pure functions of the recorded bank and the frame's draws, so the
+    # tick readings must be exactly the newest valid frame's value.
     cfg = CameraConfig(frame_rate_hz=30.0, latency_s=0.04, latency_jitter_s=0.01, jitter_s=0.003,
                        noise_rad=0.01, wander_rad=0.01, outlier_prob=0.05, outlier_rad=0.3,
                        quantization_rad=0.005, range_rad=0.5, dropout_prob=0.1,
                        classifier=ClassifierConfig(0.02, 2.0, "weighted"), bursts=BurstConfig(0.1, 3.0))
     fn = lambda t: 0.6 * np.sin(1.3 * t)  # noqa: E731  (goes beyond the range: invalid frames too)
-    a = _drive(cfg, fn, dt=0.01, n_steps=3000, batch=5, every=2, record=True)
-    b = _drive(cfg, fn, dt=0.01, n_steps=3000, batch=5, every=2, record=False)
-    for x, y in zip(a[2:], b[2:], strict=True):
-        assert_array_equal(x, y)
-    for x, y in zip(a[0].frame_readings(), b[0].frame_readings(), strict=True):
-        assert_array_equal(x, y)
-    assert 0.05 < 1 - a[0].frame_readings()[1].mean() < 0.6
+    cam, _, bank, valid, _ = _drive(cfg, fn, dt=0.01, n_steps=3000, batch=5, every=2)
+    values, ok, _ = cam.frame_readings()
+    latest = cam.plan.latest_delivered(np.arange(0, 3000, 2))  # (ticks, batch)
+    rows = np.arange(5)
+    has = latest >= 0
+    assert_array_equal(valid, has & ok[rows, np.where(has, latest, 0)])
+    for b in rows:  # the reading held is the newest valid frame's value
+        last = np.nan
+        for j in range(latest.shape[0]):
+            f = latest[j, b]
+            if f >= 0 and ok[b, f]:
+                last = values[b, f]
+            if not np.isnan(last):
+                assert bank[j, b] == last
+    assert 0.05 < 1 - ok.mean() < 0.6
 
 
 def test_sensor_section_keys_and_errors():
