@@ -2,16 +2,20 @@
 
 from __future__ import annotations
 
+import sys
+from pathlib import Path
+
 from sim.errors import UserInputError
 from sim.scenario import Scenario
 
-__all__ = ["apply_run_overrides", "MAX_RUNS"]
+__all__ = ["apply_run_overrides", "MAX_RUNS", "print_tables", "status_stream", "say_written"]
 
 MAX_RUNS = 100_000
 
 
-def apply_run_overrides(sc: Scenario, runs: int | None, seed: int | None, *, min_runs: int = 1,
-                        why: str = "") -> Scenario:
+def apply_run_overrides(
+    sc: Scenario, runs: int | None, seed: int | None, *, min_runs: int = 1, why: str = ""
+) -> Scenario:
     """The scenario with ``--runs`` and ``--seed`` applied (range-checked)."""
     changes = {}
     if runs is not None:
@@ -23,3 +27,21 @@ def apply_run_overrides(sc: Scenario, runs: int | None, seed: int | None, *, min
             raise UserInputError(f"--seed {seed}: allowed: seed ≥ 0")
         changes["seed"] = seed
     return sc.with_run(**changes) if changes else sc
+
+
+def print_tables(tables: list, fmt: str) -> None:
+    """Print report tables to standard output in the chosen format."""
+    from sim.report.table import render
+
+    text = render(tables, fmt)
+    if text is not None:
+        sys.stdout.write(text)
+
+
+def status_stream(fmt: str):
+    """Where status lines go: with the table, or to stderr so CSV/JSON/Markdown stay clean."""
+    return sys.stdout if fmt == "table" else sys.stderr
+
+
+def say_written(folder: Path, fmt: str) -> None:
+    print(f"wrote {folder}/", file=status_stream(fmt))

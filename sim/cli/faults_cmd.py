@@ -3,9 +3,9 @@
 from __future__ import annotations
 
 import argparse
-import sys
 from pathlib import Path
 
+from sim.cli.common import apply_run_overrides, print_tables, say_written
 from sim.errors import UserInputError
 
 __all__ = ["add_parser", "run", "ranking_table"]
@@ -86,7 +86,6 @@ def ranking_table(r):
 
 def run(args: argparse.Namespace) -> int:
     from sim.analysis.fault_ranking import active_faults, rank_faults
-    from sim.cli.common import apply_run_overrides
     from sim.metrics import METRIC_INFO
     from sim.report.table import render
     from sim.scenario import load_scenario
@@ -115,9 +114,7 @@ def run(args: argparse.Namespace) -> int:
             "(step metrics need a step; try rms_error_rad)"
         ) from None
     table = ranking_table(ranking)
-    text = render([table], args.format)
-    if text is not None:
-        sys.stdout.write(text)
+    print_tables([table], args.format)
     if args.out is not None:
         from sim.report.outdir import manifest, output_folder, write_json
 
@@ -134,5 +131,5 @@ def run(args: argparse.Namespace) -> int:
                     command_line=["rollrig", "rank-faults", args.scenario],
                 ),
             )
-        print(f"wrote {args.out}/", file=sys.stderr if args.format != "table" else sys.stdout)
+        say_written(args.out, args.format)
     return 0

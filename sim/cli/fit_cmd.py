@@ -5,8 +5,9 @@ from __future__ import annotations
 import argparse
 import hashlib
 import math
-import sys
 from pathlib import Path
+
+from sim.cli.common import print_tables, say_written
 
 __all__ = ["add_parser", "run", "fit_tables", "plot_fit"]
 
@@ -111,9 +112,7 @@ def run(args: argparse.Namespace) -> int:
     except LogProblem as exc:
         raise LogFileError(f"{args.log}: {exc}") from None
     tables = fit_tables(fit, args.log)
-    text = render(tables, args.format)
-    if text is not None:
-        sys.stdout.write(text)
+    print_tables(tables, args.format)
     snippet = sensor_toml(fit, Path(args.log).name)
     if args.format == "table":
         print("\n" + snippet)
@@ -127,5 +126,5 @@ def run(args: argparse.Namespace) -> int:
             write_json(tmp / "manifest.json", manifest(
                 scenario_path=str(args.log), scenario_sha256=hashlib.sha256(raw).hexdigest(),
                 seed=None, runs=[], extra={"command": "fit-sensor", "input": "sensor log"}))
-        print(f"wrote {out_dir}/", file=sys.stderr if args.format != "table" else sys.stdout)
+        say_written(out_dir, args.format)
     return 0

@@ -9,9 +9,9 @@ imported only when this command runs.
 from __future__ import annotations
 
 import argparse
-import sys
 from pathlib import Path
 
+from sim.cli.common import print_tables, say_written, status_stream
 from sim.errors import UserInputError
 
 __all__ = ["add_parser", "run"]
@@ -75,9 +75,7 @@ def run(args: argparse.Namespace) -> int:
     except ValueError as exc:  # class/category combination refused by the tables
         raise UserInputError(f"--class {args.aircraft_class} --category {args.category}: {exc}") from None
     tables = margins_tables(rep)
-    text = render(tables, args.format)
-    if text is not None:
-        sys.stdout.write(text)
+    print_tables(tables, args.format)
 
     if out_dir is not None:
         with output_folder(out_dir, force=args.force) as tmp:
@@ -90,8 +88,8 @@ def run(args: argparse.Namespace) -> int:
                                               for t in tables])
             (tmp / "margins.md").write_text(render(tables, "md"))
             written = write_margin_plots(rep, tmp) if args.plot else []
-        stream = sys.stdout if args.format == "table" else sys.stderr
         if args.plot and not written:
-            print("no linear model for this controller: no Bode/Nichols/Nyquist plot", file=stream)
-        print(f"wrote {out_dir}/", file=stream)
+            print("no linear model for this controller: no Bode/Nichols/Nyquist plot",
+                  file=status_stream(args.format))
+        say_written(out_dir, args.format)
     return 0

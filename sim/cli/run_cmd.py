@@ -3,11 +3,11 @@
 from __future__ import annotations
 
 import argparse
-import sys
 from pathlib import Path
 
 import numpy as np
 
+from sim.cli.common import apply_run_overrides, print_tables, say_written
 from sim.errors import UserInputError
 
 __all__ = ["add_parser", "run", "HEADLINE_METRICS"]
@@ -59,7 +59,6 @@ def add_parser(sub) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    from sim.cli.common import apply_run_overrides
     from sim.report.outdir import check_out_dir, default_out_dir, output_folder
     from sim.report.table import render
     from sim.runner import run_scenario
@@ -89,9 +88,7 @@ def run(args: argparse.Namespace) -> int:
         from sim.analysis.margins_report import run_margins_table
 
         tables.append(run_margins_table(sc, allow_code=args.allow_code))
-    text = render(tables, args.format)
-    if text is not None:
-        sys.stdout.write(text)
+    print_tables(tables, args.format)
 
     if out_dir is not None:
         from sim.report.run_files import write_run_files
@@ -101,7 +98,7 @@ def run(args: argparse.Namespace) -> int:
             (tmp / "metrics.md").write_text(render(tables, "md"))
             if args.plot:
                 _plots(tmp, outcome)
-        print(f"wrote {out_dir}/", file=sys.stderr if args.format != "table" else sys.stdout)
+        say_written(out_dir, args.format)
     return 0
 
 

@@ -3,9 +3,9 @@
 from __future__ import annotations
 
 import argparse
-import sys
 from pathlib import Path
 
+from sim.cli.common import print_tables, say_written
 from sim.errors import UserInputError
 
 __all__ = ["add_parser", "run"]
@@ -89,9 +89,7 @@ def run(args: argparse.Namespace) -> int:
         check_out_dir(args.out, args.force)
     chk = check_turbulence(params, dt=dt, duration_s=args.duration_s, runs=args.records, seed=args.seed)
     table = turbulence_table(chk)
-    text = render([table], args.format)
-    if text is not None:
-        sys.stdout.write(text)
+    print_tables([table], args.format)
     if args.out is not None:
         from sim.report.outdir import manifest, output_folder, write_json
 
@@ -107,5 +105,5 @@ def run(args: argparse.Namespace) -> int:
                     runs=range(args.records),
                 ),
             )
-        print(f"wrote {args.out}/", file=sys.stderr if args.format != "table" else sys.stdout)
+        say_written(args.out, args.format)
     return 0
