@@ -31,6 +31,17 @@ def _limit_lines(ax, limit_rad: float, label: str) -> None:
         )
 
 
+def _finish_time_plot(plt, fig, ax, path: Path, ylabel: str, title: str) -> None:
+    """Axis labels, grid and legend of a time-history plot; save it as PNG and close it."""
+    ax.set_xlabel("time (s)")
+    ax.set_ylabel(ylabel)
+    ax.set_title(title)
+    ax.grid(alpha=0.3)
+    ax.legend(loc="best", fontsize=8)
+    fig.savefig(path, dpi=110)
+    plt.close(fig)
+
+
 def _invalid_spans(t_ctrl: np.ndarray, valid: np.ndarray) -> list[tuple[float, float]]:
     """Time spans where the newest delivered frame was invalid."""
     bad = ~valid.astype(bool)
@@ -58,13 +69,14 @@ def plot_bank(
         _limit_lines(ax, bank_limit_rad, "bank limit")
     if np.isfinite(trace.diverged_at[run]):
         ax.axvline(trace.diverged_at[run], color="tab:red", lw=1.5, label="diverged")
-    ax.set_xlabel("time (s)")
-    ax.set_ylabel("bank angle (deg, right wing down +)")
-    ax.set_title(title or f"bank angle, run {int(trace.run_index[run])}")
-    ax.grid(alpha=0.3)
-    ax.legend(loc="best", fontsize=8)
-    fig.savefig(path, dpi=110)
-    plt.close(fig)
+    _finish_time_plot(
+        plt,
+        fig,
+        ax,
+        path,
+        "bank angle (deg, right wing down +)",
+        title or f"bank angle, run {int(trace.run_index[run])}",
+    )
 
 
 def plot_aileron(trace: Trace, path: Path, *, run: int = 0, limit_rad: float, title: str = "") -> None:
@@ -76,13 +88,9 @@ def plot_aileron(trace: Trace, path: Path, *, run: int = 0, limit_rad: float, ti
     )
     ax.plot(trace.t, trace.aileron[run] * _DEG, color="tab:green", lw=1.4, label="position")
     _limit_lines(ax, limit_rad, "travel limit")
-    ax.set_xlabel("time (s)")
-    ax.set_ylabel("aileron (deg)")
-    ax.set_title(title or f"aileron, run {int(trace.run_index[run])}")
-    ax.grid(alpha=0.3)
-    ax.legend(loc="best", fontsize=8)
-    fig.savefig(path, dpi=110)
-    plt.close(fig)
+    _finish_time_plot(
+        plt, fig, ax, path, "aileron (deg)", title or f"aileron, run {int(trace.run_index[run])}"
+    )
 
 
 def plot_envelope(trace: Trace, path: Path, *, bank_limit_rad: float | None = None, title: str = "") -> None:
@@ -101,16 +109,10 @@ def plot_envelope(trace: Trace, path: Path, *, bank_limit_rad: float | None = No
     if bank_limit_rad is not None:
         _limit_lines(ax, bank_limit_rad, "bank limit")
     n_div = int((~keep).sum())
-    ax.set_title(
-        title
-        or f"bank envelope over {int(keep.sum())} runs" + (f" ({n_div} diverged, not shown)" if n_div else "")
+    default = f"bank envelope over {int(keep.sum())} runs" + (
+        f" ({n_div} diverged, not shown)" if n_div else ""
     )
-    ax.set_xlabel("time (s)")
-    ax.set_ylabel("bank angle (deg)")
-    ax.grid(alpha=0.3)
-    ax.legend(loc="best", fontsize=8)
-    fig.savefig(path, dpi=110)
-    plt.close(fig)
+    _finish_time_plot(plt, fig, ax, path, "bank angle (deg)", title or default)
 
 
 def plot_histograms(
