@@ -313,16 +313,6 @@ class Stepper:
             Y[:nx, r] = matmul_cols(self._ad, X[:nx, r]) + self._b_ail[:, None] * mean
             Y[nx, r] = clipped[bind]
 
-    @property
-    def aileron(self) -> np.ndarray:
-        """Current servo position, rad, ``(batch,)``."""
-        return self._X[self._nx].copy()
-
-    @property
-    def x(self) -> np.ndarray:
-        """Current plant state, ``(batch, n_x)`` (a copy)."""
-        return self._X[: self._nx].T.copy()
-
     def _record(self, k: int) -> None:
         X = self._X
         self.rec_bank[k] = X[self._phi]

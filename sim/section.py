@@ -71,9 +71,6 @@ class Section:
         self._asked.add(key)
         return key in self._table
 
-    def keys(self) -> list[str]:
-        return list(self._table)
-
     def known(self, keys: Iterable[str]) -> None:
         """Declare keys as valid without reading them (for :meth:`finish`)."""
         self._asked.update(keys)

@@ -79,26 +79,3 @@ class Trace:
     def diverged(self) -> np.ndarray:
         """(batch,) bool: runs that diverged."""
         return np.isfinite(self.diverged_at)
-
-    def select(self, rows: np.ndarray | slice | int) -> Trace:
-        """A trace holding only some runs of the batch."""
-        if isinstance(rows, int):
-            rows = slice(rows, rows + 1)
-        pick = lambda a: None if a is None else a[rows]  # noqa: E731
-        return Trace(
-            t=self.t,
-            bank_cmd=pick(self.bank_cmd),
-            bank=pick(self.bank),
-            roll_rate=pick(self.roll_rate),
-            aileron=pick(self.aileron),
-            t_ctrl=self.t_ctrl,
-            bank_meas=pick(self.bank_meas),
-            valid=pick(self.valid),
-            age=pick(self.age),
-            aileron_cmd=pick(self.aileron_cmd),
-            states=pick(self.states),
-            state_names=self.state_names,
-            diverged_at=pick(self.diverged_at),
-            run_index=pick(self.run_index),
-            seed=self.seed,
-        )
