@@ -11,33 +11,56 @@ import math
 import time
 
 import numpy as np
-
-from controllers.pid import PIDConfig, PIDController
-from sensors.camera import BurstConfig, CameraConfig, ClassifierConfig
-from sensors.gyro import GyroConfig
-from sim import presets
-from sim.actuator import ActuatorSpec
-from sim.core import LoopSetup, simulate
+from rollrig.controllers.pid import PIDConfig, PIDController
+from rollrig.sensors.camera import BurstConfig, CameraConfig, ClassifierConfig
+from rollrig.sensors.gyro import GyroConfig
+from rollrig.sim import presets
+from rollrig.sim.actuator import ActuatorSpec
+from rollrig.sim.core import LoopSetup, simulate
 
 D = math.radians
-BASE = CameraConfig(frame_rate_hz=30, latency_s=0.05, noise_rad=D(0.3), quantization_rad=D(0.5),
-                    dropout_prob=0.02)
-ALL = CameraConfig(frame_rate_hz=30, latency_s=0.05, noise_rad=D(0.3), quantization_rad=D(0.5),
-                   dropout_prob=0.02, jitter_s=0.003, exposure_s=0.02, latency_jitter_s=0.01,
-                   wander_rad=D(0.3), wander_time_s=2.0, bias_rad=D(0.5), scale=1.01,
-                   outlier_prob=0.01, outlier_rad=D(15.0), beyond_range="saturate",
-                   range_rad=D(60.0), classifier=ClassifierConfig(D(1.0), 4.0, "weighted"),
-                   bursts=BurstConfig(0.05, 3.0))
-GYRO = GyroConfig(rate_hz=100.0, noise_rad_s=D(0.05), bias_rad_s=D(0.1), bias_drift_rad_s=D(0.02),
-                  bias_drift_time_s=100.0)
+BASE = CameraConfig(
+    frame_rate_hz=30, latency_s=0.05, noise_rad=D(0.3), quantization_rad=D(0.5), dropout_prob=0.02
+)
+ALL = CameraConfig(
+    frame_rate_hz=30,
+    latency_s=0.05,
+    noise_rad=D(0.3),
+    quantization_rad=D(0.5),
+    dropout_prob=0.02,
+    jitter_s=0.003,
+    exposure_s=0.02,
+    latency_jitter_s=0.01,
+    wander_rad=D(0.3),
+    wander_time_s=2.0,
+    bias_rad=D(0.5),
+    scale=1.01,
+    outlier_prob=0.01,
+    outlier_rad=D(15.0),
+    beyond_range="saturate",
+    range_rad=D(60.0),
+    classifier=ClassifierConfig(D(1.0), 4.0, "weighted"),
+    bursts=BurstConfig(0.05, 3.0),
+)
+GYRO = GyroConfig(
+    rate_hz=100.0, noise_rad_s=D(0.05), bias_rad_s=D(0.1), bias_drift_rad_s=D(0.02), bias_drift_time_s=100.0
+)
 
 
 def setup(camera: CameraConfig, gyro: GyroConfig | None) -> LoopSetup:
     dt, n = 0.01, 6000
     t = np.arange(n + 1) * dt
-    return LoopSetup(plant=presets.light_single(), dt=dt, n_steps=n, ctrl_every=2,
-                     actuator=ActuatorSpec(), camera=camera, gyro=gyro,
-                     bank_cmd=np.where(t >= 1, D(20), 0.0), x0=np.zeros(4))
+    return LoopSetup(
+        plant=presets.light_single(),
+        dt=dt,
+        n_steps=n,
+        ctrl_every=2,
+        actuator=ActuatorSpec(),
+        camera=camera,
+        gyro=gyro,
+        bank_cmd=np.where(t >= 1, D(20), 0.0),
+        x0=np.zeros(4),
+    )
 
 
 def best_time(s: LoopSetup, runs: int, repeats: int) -> float:
@@ -51,8 +74,11 @@ def best_time(s: LoopSetup, runs: int, repeats: int) -> float:
 
 
 def main() -> None:
-    cases = {"baseline camera": setup(BASE, None), "all camera stages": setup(ALL, None),
-             "all stages + gyro": setup(ALL, GYRO)}
+    cases = {
+        "baseline camera": setup(BASE, None),
+        "all camera stages": setup(ALL, None),
+        "all stages + gyro": setup(ALL, GYRO),
+    }
     res = {name: {} for name in cases}
     for runs, reps in ((1, 5), (1000, 5)):
         for _ in range(reps):  # interleave, so machine load hits both alike
@@ -60,8 +86,11 @@ def main() -> None:
                 res[name][runs] = min(res[name].get(runs, math.inf), best_time(s, runs, 1))
     for runs in (1, 1000):
         b = res["baseline camera"][runs]
-        parts = [f"{name} {res[name][runs]:.3f} s ({100 * (res[name][runs] / b - 1):+.0f} %)"
-                 for name in cases if name != "baseline camera"]
+        parts = [
+            f"{name} {res[name][runs]:.3f} s ({100 * (res[name][runs] / b - 1):+.0f} %)"
+            for name in cases
+            if name != "baseline camera"
+        ]
         print(f"{runs:5d} runs x 60 s: baseline {b:.3f} s; " + "; ".join(parts))
 
 

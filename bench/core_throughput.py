@@ -18,33 +18,43 @@ import math
 import time
 
 import numpy as np
-
-from controllers.pid import PIDConfig, PIDController
-from sensors.camera import CameraConfig
-from sim import presets
-from sim.actuator import ActuatorSpec
-from sim.core import LoopSetup, simulate
+from rollrig.controllers.pid import PIDConfig, PIDController
+from rollrig.sensors.camera import CameraConfig
+from rollrig.sim import presets
+from rollrig.sim.actuator import ActuatorSpec
+from rollrig.sim.core import LoopSetup, simulate
 
 DT, DURATION, CAMERA_HZ, CTRL_EVERY = 0.01, 60.0, 30.0, 2
 PID = PIDConfig(kp=0.6, ki_per_s=0.15, kd_s=0.08, derivative_filter_hz=4.0)
 ACT = ActuatorSpec(0.08, math.radians(20), math.radians(60))
-CAMERA = CameraConfig(frame_rate_hz=CAMERA_HZ, latency_s=0.05, noise_rad=math.radians(0.3),
-                      quantization_rad=math.radians(0.5), dropout_prob=0.02)
+CAMERA = CameraConfig(
+    frame_rate_hz=CAMERA_HZ,
+    latency_s=0.05,
+    noise_rad=math.radians(0.3),
+    quantization_rad=math.radians(0.5),
+    dropout_prob=0.02,
+)
 
 
 def base_setup(camera: CameraConfig = CAMERA, disturbances=()) -> LoopSetup:
     n = int(round(DURATION / DT))
     t = np.arange(n + 1) * DT
     return LoopSetup(
-        plant=presets.light_single(), dt=DT, n_steps=n, ctrl_every=CTRL_EVERY, actuator=ACT,
-        camera=camera, bank_cmd=np.where(t >= 1.0, math.radians(20), 0.0), x0=np.zeros(4),
+        plant=presets.light_single(),
+        dt=DT,
+        n_steps=n,
+        ctrl_every=CTRL_EVERY,
+        actuator=ACT,
+        camera=camera,
+        bank_cmd=np.where(t >= 1.0, math.radians(20), 0.0),
+        x0=np.zeros(4),
         disturbances=disturbances,
     )
 
 
 def variants() -> dict[str, LoopSetup]:
     """Named loop set-ups to time against the baseline."""
-    from sim.turbulence import INTENSITY_W20_MPS, DrydenTurbulence, dryden_params
+    from rollrig.sim.turbulence import INTENSITY_W20_MPS, DrydenTurbulence, dryden_params
 
     plant = presets.light_single()
     dryden = dryden_params(800 * 0.3048, INTENSITY_W20_MPS["moderate"], plant.airspeed_mps, plant.span_m)
@@ -75,15 +85,18 @@ def time_python_control() -> float:
     num, den = ct.pade(CAMERA.latency_s, 3)
     cam = ct.tf2ss(ct.tf(num, den), inputs="phi", outputs="phi_m", name="camera")
     wf = 2 * math.pi * PID.derivative_filter_hz
-    pid = ct.tf2ss(ct.tf([PID.kd_s * wf + PID.kp, PID.kp * wf + PID.ki_per_s, PID.ki_per_s * wf],
-                         [1, wf, 0]), inputs="e", outputs="u", name="pid")
+    pid = ct.tf2ss(
+        ct.tf([PID.kd_s * wf + PID.kp, PID.kp * wf + PID.ki_per_s, PID.ki_per_s * wf], [1, wf, 0]),
+        inputs="e",
+        outputs="u",
+        name="pid",
+    )
     tau, lim = ACT.time_constant_s, ACT.limit_rad
 
     def servo_rhs(t, x, u, params):
         return np.array([(np.clip(u[0], -lim, lim) - x[0]) / tau])
 
-    servo = ct.nlsys(servo_rhs, lambda t, x, u, params: x, inputs="u", outputs="ail", states=1,
-                     name="servo")
+    servo = ct.nlsys(servo_rhs, lambda t, x, u, params: x, inputs="u", outputs="ail", states=1, name="servo")
     err = ct.summing_junction(inputs=["cmd", "-phi_m"], output="e", name="err")
     loop = ct.interconnect([p, cam, pid, servo, err], inputs="cmd", outputs="phi")
     t = np.arange(0, DURATION + DT / 2, DT)
@@ -99,8 +112,10 @@ def main() -> None:
     ap.add_argument("--skip-reference", action="store_true", help="do not time python-control")
     args = ap.parse_args()
     sim_seconds = args.runs * DURATION
-    print(f"stepping core: {args.runs} runs x {DURATION:g} s, base {1 / DT:g} Hz, camera {CAMERA_HZ:g} Hz, "
-          f"controller {1 / (DT * CTRL_EVERY):g} Hz")
+    print(
+        f"stepping core: {args.runs} runs x {DURATION:g} s, base {1 / DT:g} Hz, camera {CAMERA_HZ:g} Hz, "
+        f"controller {1 / (DT * CTRL_EVERY):g} Hz"
+    )
     results = {}
     for name, setup in variants().items():
         wall = time_batch(setup, args.runs)

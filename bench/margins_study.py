@@ -18,18 +18,17 @@ from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
-
-from sim.analysis.empirical import EmpiricalSettings, empirical_margins
-from sim.analysis.linear_loop import margins
-from sim.analysis.loop_from_scenario import camera_delay, has_linear_model, loop_parts_from_scenario
-from sim.analysis.margins_report import (
+from rollrig.sim.analysis.empirical import EmpiricalSettings, empirical_margins
+from rollrig.sim.analysis.linear_loop import margins
+from rollrig.sim.analysis.loop_from_scenario import camera_delay, has_linear_model, loop_parts_from_scenario
+from rollrig.sim.analysis.margins_report import (
     margins_report,
     margins_tables,
     near_tangent_crossovers,
     stale_readings,
 )
-from sim.report.plots import pyplot
-from sim.scenario import load_scenario
+from rollrig.sim.report.plots import pyplot
+from rollrig.sim.scenario import load_scenario
 
 ROOT = Path(__file__).resolve().parents[1]
 RATES = np.array([5, 6, 7.5, 8, 10, 12.5, 15, 20, 25, 30, 40, 50, 60], dtype=float)
@@ -45,8 +44,9 @@ def main() -> None:
     scenarios = [sc for sc in scenarios if has_linear_model(sc)]
     plt = pyplot()
     fig, ax = plt.subplots(figsize=(8, 4.8), layout="constrained")
-    print(f"{'scenario':40s} {'fps':>5s} {'cam delay ms':>12s} {'DM analytic s':>14s} "
-          f"{'DM empirical s':>15s}")
+    print(
+        f"{'scenario':40s} {'fps':>5s} {'cam delay ms':>12s} {'DM analytic s':>14s} {'DM empirical s':>15s}"
+    )
     for i, sc in enumerate(scenarios):
         name = Path(sc.path).stem
         dm = []
@@ -64,14 +64,18 @@ def main() -> None:
             if hz in EMPIRICAL_RATES:
                 w = min(m.gain_crossover_rad_s, m.phase_crossover_rad_s)
                 e = empirical_margins(s, EmpiricalSettings(loss=False, oscillation_rad_s=w))
-                ax.errorbar(hz, e.delay.value, yerr=e.delay.tolerance, fmt="o", color=f"C{i}", ms=5,
-                            mfc="none")
+                ax.errorbar(
+                    hz, e.delay.value, yerr=e.delay.tolerance, fmt="o", color=f"C{i}", ms=5, mfc="none"
+                )
                 emp = f"{e.delay.value:.3f} ± {e.delay.tolerance:.3f}"
             flag = " stale>limit" if stale else (" |L|~0dB" if grazing else "")
-            print(f"{name:40s} {hz:5.1f} {camera_delay(s).total_s * 1e3:12.1f} "
-                  f"{m.delay_margin_s:14.3f} {emp:>15s}{flag}")
-        ax.plot(RATES, dm, "-", color=f"C{i}",
-                label=f"{name} (latency {1e3 * float(sc.camera.latency_s):g} ms)")
+            print(
+                f"{name:40s} {hz:5.1f} {camera_delay(s).total_s * 1e3:12.1f} "
+                f"{m.delay_margin_s:14.3f} {emp:>15s}{flag}"
+            )
+        ax.plot(
+            RATES, dm, "-", color=f"C{i}", label=f"{name} (latency {1e3 * float(sc.camera.latency_s):g} ms)"
+        )
     ax.plot([], [], "o", color="0.3", mfc="none", label="empirical (simulation)")
     ax.plot([], [], "x", color="0.3", label="analytic, |L| grazes 0 dB (ill-conditioned)")
     ax.set_xscale("log")
@@ -79,8 +83,10 @@ def main() -> None:
     ax.set_xticks([], minor=True)
     ax.set_xlabel("camera frame rate (Hz)")
     ax.set_ylabel("delay margin (s)")
-    ax.set_title("Delay margin of the bundled PID loops vs camera frame rate\n"
-                 "lines: analytic (exact delays); circles: simulated, noise off")
+    ax.set_title(
+        "Delay margin of the bundled PID loops vs camera frame rate\n"
+        "lines: analytic (exact delays); circles: simulated, noise off"
+    )
     ax.grid(True, which="both", alpha=0.3)
     ax.set_ylim(bottom=0.0)
     ax.legend(fontsize=8, loc="lower right")
@@ -97,9 +103,11 @@ def main() -> None:
     margins_tables(rep)
     wall = time.perf_counter() - t0
     cpu = time.process_time()
-    print(f"full margins report, {Path(sc.path).stem}: {wall:.2f} s wall "
-          f"({', '.join(f'{k} {v:.2f} s' for k, v in rep.timings_s.items())}); "
-          f"process CPU so far {cpu:.1f} s")
+    print(
+        f"full margins report, {Path(sc.path).stem}: {wall:.2f} s wall "
+        f"({', '.join(f'{k} {v:.2f} s' for k, v in rep.timings_s.items())}); "
+        f"process CPU so far {cpu:.1f} s"
+    )
     assert math.isfinite(wall)
 
 

@@ -199,6 +199,7 @@ def frame_draws(cfg: CameraConfig, n_frames: int, rng_for: RngFor) -> dict[str, 
     Returns arrays of shape ``(batch, n_frames)`` (``outliers``:
     ``(batch, 2, n_frames)``); only stages that are switched on draw.
     """
+
     def stack(stream: str, draw) -> np.ndarray:
         gens = rng_for(stream)
         out = np.empty((len(gens), n))
@@ -236,8 +237,9 @@ def frame_offsets(cfg: CameraConfig, draws: dict[str, np.ndarray], batch: int, n
     if "noise" in draws:
         parts.append(stages.white_noise(draws["noise"], cfg.noise_rad))
     if "wander" in draws:
-        parts.append(stages.gauss_markov(draws["wander"], cfg.wander_rad, cfg.wander_time_s,
-                                         1.0 / cfg.frame_rate_hz))
+        parts.append(
+            stages.gauss_markov(draws["wander"], cfg.wander_rad, cfg.wander_time_s, 1.0 / cfg.frame_rate_hz)
+        )
     if "outliers" in draws:
         o = draws["outliers"]
         parts.append(stages.outlier_offsets(o[:, 0], o[:, 1], cfg.outlier_prob, cfg.outlier_rad))
@@ -255,8 +257,11 @@ def frame_losses(cfg: CameraConfig, draws: dict[str, np.ndarray], batch: int) ->
     if "dropout" in draws:
         lost = stages.independent_losses(draws["dropout"], _per_run(cfg.dropout_prob, batch, "dropout_prob"))
     if "bursts" in draws:
-        b = stages.burst_losses(draws["bursts"], _per_run(cfg.bursts.loss_rate, batch, "bursts.loss_rate"),
-                                cfg.bursts.mean_burst_frames)
+        b = stages.burst_losses(
+            draws["bursts"],
+            _per_run(cfg.bursts.loss_rate, batch, "bursts.loss_rate"),
+            cfg.bursts.mean_burst_frames,
+        )
         lost = b if lost is None else lost | b
     return lost
 
@@ -310,8 +315,13 @@ class CameraReader:
         draws = frame_draws(cfg, n, rng_for)
         latency = _per_run(cfg.latency_s, batch, "latency_s")
         self.plan = plan_frames(
-            cfg.frame_rate_hz, self.dt, n_steps, batch, latency_s=latency,
-            jitter_eps=draws.get("jitter"), jitter_s=cfg.jitter_s,
+            cfg.frame_rate_hz,
+            self.dt,
+            n_steps,
+            batch,
+            latency_s=latency,
+            jitter_eps=draws.get("jitter"),
+            jitter_s=cfg.jitter_s,
             latency_extra_s=None if "latency" not in draws else cfg.latency_jitter_s * draws["latency"],
         )
         self.n_frames, self.batch = n, batch
@@ -331,8 +341,11 @@ class CameraReader:
         self._kept[n] = False
         self._cap_step = np.zeros((n + 1, batch), dtype=np.int64)
         self._cap_step[:n] = self.plan.capture_step.T
-        self._centres = (None if cfg.classifier is None
-                         else stages.class_centres(cfg.classifier.class_width_rad, cfg.range_rad))
+        self._centres = (
+            None
+            if cfg.classifier is None
+            else stages.class_centres(cfg.classifier.class_width_rad, cfg.range_rad)
+        )
         self._weights = stages.exposure_weights(cfg.exposure_s, self.dt)
         self.capture_time = np.full((n + 1, batch), -np.inf)
         self.capture_time[:n] = self.plan.capture_step.T * self.dt

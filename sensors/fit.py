@@ -150,15 +150,24 @@ def _noise_and_wander(e_frames: np.ndarray, period: float, q: float):
     wander = (0.0, 0.0, 0.0, 0.0)
     if c[1] > 4 * se_c[1] and c[1] > 0.02 * c0:
         # fit A·exp(−kT/τ) to the lags while the correlation stays clear of the noise
-        stop = int(np.argmax(c[1:] < max(0.1 * c[1], 3 * se_c[1]))) + 1 if np.any(
-            c[1:] < max(0.1 * c[1], 3 * se_c[1])) else max_lag
+        stop = (
+            int(np.argmax(c[1:] < max(0.1 * c[1], 3 * se_c[1]))) + 1
+            if np.any(c[1:] < max(0.1 * c[1], 3 * se_c[1]))
+            else max_lag
+        )
         lags = np.arange(1, max(stop, 3) + 1)
         rho1 = min(max(c[2] / c[1], 0.05), 0.999) if c[1] > 0 else 0.5
         guess = (c[1] / rho1, -period / math.log(rho1))
         try:
             (amp, tau), cov = curve_fit(
-                lambda k, a, tau: a * np.exp(-k * period / tau), lags, c[lags], p0=guess,
-                sigma=se_c[lags], absolute_sigma=True, bounds=([0.0, period / 20], [np.inf, np.inf]))
+                lambda k, a, tau: a * np.exp(-k * period / tau),
+                lags,
+                c[lags],
+                p0=guess,
+                sigma=se_c[lags],
+                absolute_sigma=True,
+                bounds=([0.0, period / 20], [np.inf, np.inf]),
+            )
             se_amp, se_tau = np.sqrt(np.diag(cov))
             # pairs of lags are correlated; inflate by the number of lags used
             infl = math.sqrt(lags.size)
@@ -192,14 +201,20 @@ def _check(t, ref, y, valid) -> np.ndarray:
     if np.isfinite(ref).sum() < 10:
         raise LogProblem("the reference column has fewer than 10 numbers; allowed: a reference on most rows")
     if usable.sum() < 30:
-        raise LogProblem(f"only {int(usable.sum())} rows have both a valid reading and a reference; "
-                         "allowed: at least 30 (no overlap)")
+        raise LogProblem(
+            f"only {int(usable.sum())} rows have both a valid reading and a reference; "
+            "allowed: at least 30 (no overlap)"
+        )
     return usable
 
 
 def fit_sensor(
-    t: np.ndarray, reference: np.ndarray, reading: np.ndarray, valid: np.ndarray | None = None,
-    *, max_latency_s: float = 2.0,
+    t: np.ndarray,
+    reference: np.ndarray,
+    reading: np.ndarray,
+    valid: np.ndarray | None = None,
+    *,
+    max_latency_s: float = 2.0,
 ) -> SensorFit:
     """Fit the camera-reader model to a log (angles in rad, time in s).
 
@@ -255,8 +270,10 @@ def fit_sensor(
         if inside.sum() >= 30 and np.std(x[inside]) > 0:
             score[i] = np.corrcoef(x[inside], y[inside])[0, 1] ** 2
     if not np.isfinite(score).any():
-        raise LogProblem("reading and reference do not overlap in time or the reference never moves; "
-                         "allowed: a log where the bank angle changes")
+        raise LogProblem(
+            "reading and reference do not overlap in time or the reference never moves; "
+            "allowed: a log where the bank angle changes"
+        )
     tau0 = float(grid[int(np.argmax(score))])
 
     # robust first fit at the coarse lag: outliers by median absolute deviation
@@ -277,15 +294,16 @@ def fit_sensor(
         return float(res @ res) / max(m.sum(), 1)
 
     lo, hi = max(0.0, tau0 - period), tau0 + period
-    tau = float(minimize_scalar(ssr, bounds=(lo, hi), method="bounded",
-                                options={"xatol": 1e-5}).x)
+    tau = float(minimize_scalar(ssr, bounds=(lo, hi), method="bounded", options={"xatol": 1e-5}).x)
 
     x, inside = aligned(tau)
     A = np.column_stack([x, np.ones_like(x)])
     m = inside & ~outlier
     if m.sum() < 30:
-        raise LogProblem("fewer than 30 readings overlap the reference after the latency shift; "
-                         "allowed: a longer log (no overlap)")
+        raise LogProblem(
+            "fewer than 30 readings overlap the reference after the latency shift; "
+            "allowed: a longer log (no overlap)"
+        )
     coef, *_ = np.linalg.lstsq(A[m], y[m], rcond=None)
     scale, bias = float(coef[0]), float(coef[1])
     resid = y - A @ coef
@@ -328,19 +346,32 @@ def fit_sensor(
         "noise_rad": Estimate(sw, se_sw, "rad", "residual, q²/12 removed"),
         "wander_rad": Estimate(sg, se_sg, "rad", "residual autocovariance"),
         "wander_time_s": Estimate(tg, se_tg, "s", "residual autocovariance"),
-        "outlier_prob": Estimate(p_out, math.sqrt(max(p_out * (1 - p_out), 1e-12) / max(n_in, 1)), "1",
-                                 f"> {_OUTLIER_SIGMAS:g} robust std"),
+        "outlier_prob": Estimate(
+            p_out,
+            math.sqrt(max(p_out * (1 - p_out), 1e-12) / max(n_in, 1)),
+            "1",
+            f"> {_OUTLIER_SIGMAS:g} robust std",
+        ),
         "outlier_rad": Estimate(size_out, 0.0, "rad", "mean |residual|"),
         "loss_rate": Estimate(pi, se_pi, "1", "invalid/empty/missing"),
-        "mean_burst_frames": Estimate(mb, se_mb, "frames",
-                                      "bursty" if bursty else f"independent: {mb_indep:.2f}"),
+        "mean_burst_frames": Estimate(
+            mb, se_mb, "frames", "bursty" if bursty else f"independent: {mb_indep:.2f}"
+        ),
     }
     pred = np.full(t.size, np.nan)
     pred[usable] = A @ coef
     full_out = np.zeros(t.size, bool)
     full_out[np.flatnonzero(usable)[outlier]] = True
-    return SensorFit(estimates=est, bursty=bool(bursty), t=t, reading=y_all, predicted=pred,
-                     outlier=full_out, n_rows=int(t.size), n_frames=n_frames)
+    return SensorFit(
+        estimates=est,
+        bursty=bool(bursty),
+        t=t,
+        reading=y_all,
+        predicted=pred,
+        outlier=full_out,
+        n_rows=int(t.size),
+        n_frames=n_frames,
+    )
 
 
 def sensor_toml(fit: SensorFit, source: str = "") -> str:

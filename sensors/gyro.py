@@ -47,6 +47,7 @@ class GyroConfig:
 
 def gyro_errors(cfg: GyroConfig, n: int, rng_for: Callable[[str], Sequence[np.random.Generator]]):
     """Per-sample error ``(batch, n)`` rad/s (bias + drift + noise), or the bias alone."""
+
     def normals(stream: str) -> np.ndarray:
         gens = rng_for(stream)
         out = np.empty((len(gens), n))

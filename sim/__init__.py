@@ -7,11 +7,6 @@ never import from here.
 
 from __future__ import annotations
 
+from rollrig import __version__
+
 __all__ = ["__version__"]
-
-try:  # installed distribution
-    from importlib.metadata import PackageNotFoundError, version
-
-    __version__ = version("rollrig")
-except PackageNotFoundError:  # running from a source tree
-    __version__ = "0.0.0+source"

@@ -36,4 +36,3 @@ class ActuatorSpec:
         if self.time_constant_s <= 0:
             return 1.0
         return -math.expm1(-dt / self.time_constant_s)
-

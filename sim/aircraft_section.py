@@ -45,8 +45,16 @@ _DERIVATIVES = {
     "l_dr_per_s2": "l_dr",
     "n_dr_per_s2": "n_dr",
 }
-_REQUIRED_DERIVATIVES = ("y_beta_mps2", "l_beta_per_s2", "l_p_per_s", "l_r_per_s",
-                         "n_beta_per_s2", "n_p_per_s", "n_r_per_s", "l_da_per_s2")
+_REQUIRED_DERIVATIVES = (
+    "y_beta_mps2",
+    "l_beta_per_s2",
+    "l_p_per_s",
+    "l_r_per_s",
+    "n_beta_per_s2",
+    "n_p_per_s",
+    "n_r_per_s",
+    "l_da_per_s2",
+)
 
 
 def parse_aircraft(sec: Section) -> LinearPlant:
@@ -85,11 +93,13 @@ def parse_aircraft(sec: Section) -> LinearPlant:
             or "p" not in names
         ):
             raise sec.error(
-                "states", f"must list {n} distinct state names including \"p\" (roll rate) and \"phi\" (bank)"
+                "states", f'must list {n} distinct state names including "p" (roll rate) and "phi" (bank)'
             )
         bd = sec.array("b_disturbance", None, shape=(n, 4))
         plant = presets.from_matrices(
-            a, b, tuple(names),
+            a,
+            b,
+            tuple(names),
             airspeed_mps=sec.number("airspeed_mps", lo=1.0, hi=300.0, lo_open=True),
             b_disturbance=bd,
             span_m=sec.number("span_m", None, lo=0.1, hi=100.0),

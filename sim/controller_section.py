@@ -12,8 +12,8 @@ import math
 from dataclasses import dataclass, field
 from typing import Any
 
-from controllers.base import Controller
-from controllers.pid import PIDConfig, PIDController
+from rollrig.controllers.base import Controller
+from rollrig.controllers.pid import PIDConfig, PIDController
 
 from .errors import ScenarioError
 from .section import Section
@@ -81,7 +81,7 @@ def parse_controller(sec: Section, *, base_step_s: float, aileron_limit_rad: flo
         return ControllerSpec(kind=kind, rate_hz=rate, pid=pid, file=sec.file)
     path = sec.string("class")
     if path.count(":") != 1 or not all(path.split(":")):
-        raise sec.error("class", f"= {path!r}; allowed: \"package.module:ClassName\"")
+        raise sec.error("class", f'= {path!r}; allowed: "package.module:ClassName"')
     params = sec.mapping("params")
     sec.finish()
     return ControllerSpec(kind=kind, rate_hz=rate, class_path=path, params=params, file=sec.file)

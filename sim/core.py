@@ -32,10 +32,9 @@ from dataclasses import dataclass, field
 
 import numpy as np
 import scipy.linalg
-
-from controllers.base import Controller, Observation
-from sensors.camera import CameraConfig, CameraReader
-from sensors.gyro import GyroConfig, RateGyro
+from rollrig.controllers.base import Controller, Observation
+from rollrig.sensors.camera import CameraConfig, CameraReader
+from rollrig.sensors.gyro import GyroConfig, RateGyro
 
 from .actuator import ActuatorSpec
 from .disturbance import DisturbanceSet
@@ -186,7 +185,8 @@ class Stepper:
         self.tick = 0
         self._gain = None if input_gain is None else np.broadcast_to(np.asarray(input_gain, float), (batch,))
         self._delay_steps = (
-            None if input_delay_s is None
+            None
+            if input_delay_s is None
             else np.rint(np.broadcast_to(np.asarray(input_delay_s, float), (batch,)) / s.dt).astype(np.int64)
         )
         if self._delay_steps is not None and np.any(self._delay_steps < 0):
@@ -259,9 +259,7 @@ class Stepper:
         else:
             # While the command is held the lag's per-step change only shrinks,
             # so a run can meet a limit in this tick only if it does at its start.
-            near_limit = np.flatnonzero(
-                (np.abs(u) > lim) | (self._alpha * np.abs(u - X[nx]) > max_change)
-            )
+            near_limit = np.flatnonzero((np.abs(u) > lim) | (self._alpha * np.abs(u - X[nx]) > max_change))
         for k in range(self.k, stop):
             if perturbed:
                 X[nx + 1] = self._perturbed_command(k, u)

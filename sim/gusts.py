@@ -109,9 +109,7 @@ class OneMinusCosineGust:
             if not (math.isfinite(value) and value > 0.0):
                 raise ValueError(f"OneMinusCosineGust.{name} must be finite and > 0, got {value!r}")
         if not (math.isfinite(self.onset_s) and self.onset_s >= 0.0):
-            raise ValueError(
-                f"OneMinusCosineGust.onset_s must be finite and >= 0, got {self.onset_s!r}"
-            )
+            raise ValueError(f"OneMinusCosineGust.onset_s must be finite and >= 0, got {self.onset_s!r}")
         if not math.isfinite(self.amplitude):
             raise ValueError(f"OneMinusCosineGust.amplitude must be finite, got {self.amplitude!r}")
 

@@ -24,8 +24,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-
-from sim.trace import Trace
+from rollrig.sim.trace import Trace
 
 __all__ = [
     "StepSegment",
@@ -123,12 +122,8 @@ class MetricSpec:
         if (self.settle_band_frac is None) == (self.settle_band_rad is None):
             raise ValueError("MetricSpec: set exactly one of settle_band_frac, settle_band_rad")
         if self.settle_band_frac is not None and not 0.0 < self.settle_band_frac < 1.0:
-            raise ValueError(
-                f"MetricSpec: settle_band_frac {self.settle_band_frac} outside (0, 1)"
-            )
-        if self.settle_band_rad is not None and not (
-            0.0 < self.settle_band_rad < np.inf
-        ):
+            raise ValueError(f"MetricSpec: settle_band_frac {self.settle_band_frac} outside (0, 1)")
+        if self.settle_band_rad is not None and not (0.0 < self.settle_band_rad < np.inf):
             raise ValueError(f"MetricSpec: settle_band_rad {self.settle_band_rad} must be > 0")
         for name in ("hold_band_rad", "bank_limit_rad"):
             v = getattr(self, name)
@@ -180,78 +175,151 @@ _DEG = 180.0 / np.pi
 METRIC_INFO: dict[str, MetricInfo] = {
     # step metrics (evaluate: worst over the non-zero steps)
     "rise_time_s": MetricInfo(
-        "rise time", "s", 1.0, True, "value",
+        "rise time",
+        "s",
+        1.0,
+        True,
+        "value",
         "10-90 % rise time of the step (inf if 90 % never reached or zero-size step)",
     ),
     "settling_time_s": MetricInfo(
-        "settling time", "s", 1.0, True, "value",
+        "settling time",
+        "s",
+        1.0,
+        True,
+        "value",
         "time after the step after which |bank - target| stays within the band "
         "until the segment end (inf if not settled)",
     ),
     "overshoot_pct": MetricInfo(
-        "overshoot", "%", 1.0, True, "value",
+        "overshoot",
+        "%",
+        1.0,
+        True,
+        "value",
         "largest excursion beyond the target, in the step direction, in % of the step size",
     ),
     "steady_state_error_rad": MetricInfo(
-        "steady-state error", "deg", _DEG, True, "value",
+        "steady-state error",
+        "deg",
+        _DEG,
+        True,
+        "value",
         "|mean(bank - target)| over the last 10 % of the segment",
     ),
     "peak_bank_rad": MetricInfo(
-        "peak bank", "deg", _DEG, True, "value",
+        "peak bank",
+        "deg",
+        _DEG,
+        True,
+        "value",
         "largest |bank| within the step segment",
     ),
     "itae": MetricInfo(
-        "ITAE", "deg s^2", _DEG, True, "value",
+        "ITAE",
+        "deg s^2",
+        _DEG,
+        True,
+        "value",
         "integral of (t - t_step)|bank - target| dt over the segment",
     ),
     # hold / tracking metrics (whole record, error against the command)
     "rms_error_rad": MetricInfo(
-        "RMS error", "deg", _DEG, True, "value",
+        "RMS error",
+        "deg",
+        _DEG,
+        True,
+        "value",
         "time-RMS of bank - command over the record",
     ),
     "max_abs_error_rad": MetricInfo(
-        "max |error|", "deg", _DEG, True, "value",
+        "max |error|",
+        "deg",
+        _DEG,
+        True,
+        "value",
         "largest |bank - command| over the record",
     ),
     "max_abs_bank_rad": MetricInfo(
-        "max |bank|", "deg", _DEG, True, "value",
+        "max |bank|",
+        "deg",
+        _DEG,
+        True,
+        "value",
         "largest |bank| over the record (hold_metrics only)",
     ),
     "time_outside_band_s": MetricInfo(
-        "time outside band", "s", 1.0, True, "value",
+        "time outside band",
+        "s",
+        1.0,
+        True,
+        "value",
         "total time with |bank - command| > hold band",
     ),
     # actuator metrics
     "aileron_rms_rad": MetricInfo(
-        "aileron RMS", "deg", _DEG, True, "value",
+        "aileron RMS",
+        "deg",
+        _DEG,
+        True,
+        "value",
         "time-RMS of the aileron position",
     ),
     "pct_time_at_limit": MetricInfo(
-        "time at aileron limit", "%", 1.0, True, "value",
+        "time at aileron limit",
+        "%",
+        1.0,
+        True,
+        "value",
         "% of time with |aileron| within 0.5 % of its position limit",
     ),
     "pct_time_at_rate_limit": MetricInfo(
-        "time at aileron rate limit", "%", 1.0, True, "value",
+        "time at aileron rate limit",
+        "%",
+        1.0,
+        True,
+        "value",
         "% of time with |d aileron/dt| within 0.5 % of its rate limit",
     ),
     # safety metrics
     "peak_abs_bank_rad": MetricInfo(
-        "peak |bank|", "deg", _DEG, True, "value",
+        "peak |bank|",
+        "deg",
+        _DEG,
+        True,
+        "value",
         "largest |bank| before divergence (inf if diverged)",
     ),
     "limit_exceeded": MetricInfo(
-        "bank limit exceeded", "", 1.0, True, "flag",
+        "bank limit exceeded",
+        "",
+        1.0,
+        True,
+        "flag",
         "|bank| went above the bank limit (or the run diverged)",
     ),
     "first_exceedance_s": MetricInfo(
-        "first limit exceedance", "s", 1.0, False, "value",
+        "first limit exceedance",
+        "s",
+        1.0,
+        False,
+        "value",
         "first time |bank| > bank limit (inf if never); earlier is worse",
     ),
     "diverged": MetricInfo(
-        "diverged", "", 1.0, True, "flag", "the run was declared diverged",
+        "diverged",
+        "",
+        1.0,
+        True,
+        "flag",
+        "the run was declared diverged",
     ),
     "diverged_at_s": MetricInfo(
-        "diverged at", "s", 1.0, False, "value",
+        "diverged at",
+        "s",
+        1.0,
+        False,
+        "value",
         "time the run was declared diverged (inf if not); earlier is worse",
     ),
 }
@@ -293,9 +361,7 @@ def _per_run(v, batch: int, name: str) -> np.ndarray:
         raise ValueError(f"{name} must be a scalar or shape ({batch},)") from exc
 
 
-def _first_crossing(
-    t: np.ndarray, x: np.ndarray, level: np.ndarray, strict: bool
-) -> np.ndarray:
+def _first_crossing(t: np.ndarray, x: np.ndarray, level: np.ndarray, strict: bool) -> np.ndarray:
     """Interpolated time of the first upward crossing of ``level`` by ``x``.
 
     ``x`` is ``(batch, m)`` on grid ``t`` ``(m,)``; ``level`` is ``(batch,)``.
@@ -415,9 +481,7 @@ def step_metrics(
     denom = np.where(jn > j, ea - eb, 1.0)  # ea > band >= eb, so positive
     frac = np.clip(np.where(jn > j, (ea - band) / denom, 0.0), 0.0, 1.0)
     t_in = ts[j] + frac * (ts[jn] - ts[j])
-    settle = np.where(
-        ~any_out, ts[0] - t_step, np.where(j >= m - 1, np.inf, t_in - t_step)
-    )
+    settle = np.where(~any_out, ts[0] - t_step, np.where(j >= m - 1, np.inf, t_in - t_step))
 
     # overshoot in the step direction
     beyond = np.max(progress, axis=1) - 1.0
@@ -442,9 +506,7 @@ def step_metrics(
 
 
 # ------------------------------------------------------------- hold metrics
-def hold_metrics(
-    t: np.ndarray, y: np.ndarray, y_ref, band_rad: float
-) -> dict[str, np.ndarray]:
+def hold_metrics(t: np.ndarray, y: np.ndarray, y_ref, band_rad: float) -> dict[str, np.ndarray]:
     """Hold (regulation) metrics over the whole record.
 
     Parameters
@@ -623,11 +685,14 @@ def evaluate_steps(trace: Trace, spec: MetricSpec) -> list[dict[str, np.ndarray]
         if abs(seg.size_rad) <= _ZERO_STEP_RAD:
             continue
         if seg.t_step_s >= t[-1]:
-            raise ValueError(
-                f"step at {seg.t_step_s} s is at or after the end of the trace ({t[-1]} s)"
-            )
+            raise ValueError(f"step at {seg.t_step_s} s is at or after the end of the trace ({t[-1]} s)")
         m = step_metrics(
-            t, bank, seg.t_step_s, seg.bank_from_rad, seg.bank_to_rad, seg.t_end_s,
+            t,
+            bank,
+            seg.t_step_s,
+            seg.bank_from_rad,
+            seg.bank_to_rad,
+            seg.t_end_s,
             spec.band_for(seg),
         )
         t_end = min(seg.t_end_s, float(t[-1]))

@@ -106,9 +106,7 @@ class LinearPlant:
     def __post_init__(self) -> None:
         object.__setattr__(self, "a", _frozen_array(self.a, "a"))
         object.__setattr__(self, "b_control", _frozen_array(self.b_control, "b_control"))
-        object.__setattr__(
-            self, "b_disturbance", _frozen_array(self.b_disturbance, "b_disturbance")
-        )
+        object.__setattr__(self, "b_disturbance", _frozen_array(self.b_disturbance, "b_disturbance"))
         object.__setattr__(self, "state_names", tuple(self.state_names))
         check_plant(self)
 

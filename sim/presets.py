@@ -22,8 +22,7 @@ from dataclasses import dataclass
 from types import MappingProxyType
 
 import numpy as np
-
-from sim.plant import N_CONTROLS, N_DISTURBANCES, LinearPlant
+from rollrig.sim.plant import N_CONTROLS, N_DISTURBANCES, LinearPlant
 
 __all__ = [
     "LATERAL_STATES",
@@ -143,9 +142,7 @@ def from_dimensional_derivatives(
             np.array([y_dr / v, l_dr, n_dr, 0.0]),
         ]
     )
-    b_disturbance = np.column_stack(
-        [-aero_beta / v, -aero_p, -aero_r, np.array([0.0, 1.0, 0.0, 0.0])]
-    )
+    b_disturbance = np.column_stack([-aero_beta / v, -aero_p, -aero_r, np.array([0.0, 1.0, 0.0, 0.0])])
     return LinearPlant(
         name=name,
         a=a,
@@ -352,9 +349,7 @@ def small_uav_derivatives(
     }
 
 
-def small_uav(
-    airspeed_mps: float = 25.0, airframe: AirframeCoefficients = SMALL_UAV_AIRFRAME
-) -> LinearPlant:
+def small_uav(airspeed_mps: float = 25.0, airframe: AirframeCoefficients = SMALL_UAV_AIRFRAME) -> LinearPlant:
     """Small fixed-wing UAV of Beard & McLain (2012), lateral model at ``Va``.
 
     Parameters

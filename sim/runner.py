@@ -10,8 +10,7 @@ from collections.abc import Sequence
 from dataclasses import dataclass
 
 import numpy as np
-
-from controllers.base import Controller
+from rollrig.controllers.base import Controller
 
 from .controller_section import make_controller
 from .core import simulate

@@ -17,9 +17,8 @@ from dataclasses import dataclass, replace
 from pathlib import Path
 
 import numpy as np
-
-from sensors.camera import CameraConfig
-from sensors.gyro import GyroConfig
+from rollrig.sensors.camera import CameraConfig
+from rollrig.sensors.gyro import GyroConfig
 
 from .actuator import ActuatorSpec
 from .aircraft_section import parse_aircraft

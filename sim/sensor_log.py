@@ -79,9 +79,12 @@ def write_log(path: Path, log: SensorLogData) -> None:
             w.writerow(cols)
             for i in range(log.t.size):
                 r = log.reading[i]
-                row = [f"{log.t[i]:.6f}", f"{math.degrees(log.reference[i]):.6f}",
-                       "" if not math.isfinite(r) else f"{math.degrees(r):.6f}",
-                       "1" if log.valid is None or log.valid[i] else "0"]
+                row = [
+                    f"{log.t[i]:.6f}",
+                    f"{math.degrees(log.reference[i]):.6f}",
+                    "" if not math.isfinite(r) else f"{math.degrees(r):.6f}",
+                    "1" if log.valid is None or log.valid[i] else "0",
+                ]
                 if log.confidence is not None:
                     row.append(f"{log.confidence[i]:.4f}")
                 w.writerow(row)
@@ -92,9 +95,15 @@ def write_log(path: Path, log: SensorLogData) -> None:
         raise
 
 
-def read_log(path: str | Path, *, time_col: str = "t_s", reference_col: str = "reference_deg",
-             reading_col: str = "reading_deg", valid_col: str | None = "valid",
-             valid_required: bool = False) -> SensorLogData:
+def read_log(
+    path: str | Path,
+    *,
+    time_col: str = "t_s",
+    reference_col: str = "reference_deg",
+    reading_col: str = "reading_deg",
+    valid_col: str | None = "valid",
+    valid_required: bool = False,
+) -> SensorLogData:
     """Read a CSV log; angles in degrees in the file, radians returned.
 
     Empty reading cells (or ``nan``) are readings the reader did not give.
@@ -113,15 +122,21 @@ def read_log(path: str | Path, *, time_col: str = "t_s", reference_col: str = "r
         raise LogFileError(f"{p}: is empty; allowed: a CSV file with a header row")
     header = [h.strip() for h in rows[0]]
     cols = {}
-    for what, name, needed in (("time", time_col, True), ("reference", reference_col, True),
-                               ("reading", reading_col, True), ("valid", valid_col, valid_required)):
+    for what, name, needed in (
+        ("time", time_col, True),
+        ("reference", reference_col, True),
+        ("reading", reading_col, True),
+        ("valid", valid_col, valid_required),
+    ):
         if name is None:
             continue
         if name not in header:
             if needed:
-                raise LogFileError(f"{p}: {what} column {name!r} not found; "
-                                   f"allowed: one of {', '.join(header)} "
-                                   f"(choose with --{what}-col)")
+                raise LogFileError(
+                    f"{p}: {what} column {name!r} not found; "
+                    f"allowed: one of {', '.join(header)} "
+                    f"(choose with --{what}-col)"
+                )
             continue
         cols[what] = header.index(name)
     data = rows[1:]
@@ -137,8 +152,10 @@ def read_log(path: str | Path, *, time_col: str = "t_s", reference_col: str = "r
             try:
                 out[i] = float(cell)
             except ValueError:
-                raise LogFileError(f"{p}: row {i + 2}, column {header[j]!r} = {cell!r} is not a number; "
-                                   "allowed: numbers" + (" or empty" if allow_empty else "")) from None
+                raise LogFileError(
+                    f"{p}: row {i + 2}, column {header[j]!r} = {cell!r} is not a number; "
+                    "allowed: numbers" + (" or empty" if allow_empty else "")
+                ) from None
         return out
 
     valid = None
@@ -149,8 +166,9 @@ def read_log(path: str | Path, *, time_col: str = "t_s", reference_col: str = "r
         for i, row in enumerate(data):
             cell = (row[j] if j < len(row) else "").strip().lower()
             if cell not in truth:
-                raise LogFileError(f"{p}: row {i + 2}, column {header[j]!r} = {cell!r}; "
-                                   "allowed: 1/0, true/false, yes/no")
+                raise LogFileError(
+                    f"{p}: row {i + 2}, column {header[j]!r} = {cell!r}; allowed: 1/0, true/false, yes/no"
+                )
             valid[i] = truth[cell]
     return SensorLogData(
         t=column("time", False),

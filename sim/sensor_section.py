@@ -41,8 +41,8 @@ from __future__ import annotations
 
 import math
 
-from sensors.camera import BurstConfig, CameraConfig, ClassifierConfig
-from sensors.gyro import GyroConfig
+from rollrig.sensors.camera import BurstConfig, CameraConfig, ClassifierConfig
+from rollrig.sensors.gyro import GyroConfig
 
 from .section import Section
 
@@ -73,8 +73,11 @@ def parse_sensor(sec: Section | None, *, base_step_s: float) -> tuple[CameraConf
         loss = b.number("loss_rate", lo=0.0, hi=0.9)
         burst = b.number("mean_burst_frames", lo=1.0, hi=1000.0)
         if burst < loss / (1.0 - loss):  # else P(good -> bad) = π/(b(1 − π)) would exceed 1
-            raise b.error("mean_burst_frames", f"= {burst:g} is too short for loss_rate {loss:g}; "
-                          f"allowed: mean_burst_frames ≥ {loss / (1.0 - loss):.3g} (= π/(1 − π))")
+            raise b.error(
+                "mean_burst_frames",
+                f"= {burst:g} is too short for loss_rate {loss:g}; "
+                f"allowed: mean_burst_frames ≥ {loss / (1.0 - loss):.3g} (= π/(1 − π))",
+            )
         bursts = BurstConfig(loss_rate=loss, mean_burst_frames=burst)
         b.finish()
     cam = CameraConfig(

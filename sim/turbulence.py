@@ -71,8 +71,7 @@ from dataclasses import dataclass
 
 import numpy as np
 import scipy.linalg
-
-from sensors.stages import first_order_recursion
+from rollrig.sensors.stages import first_order_recursion
 
 from .disturbance import N_CHANNELS
 
@@ -158,9 +157,7 @@ def _low_altitude_ft(h_ft: float) -> tuple[float, float, float]:
     return h_ft / d**1.2, h_ft, 1.0 / d**0.4
 
 
-def dryden_params(
-    altitude_m: float, w20_mps: float, airspeed_mps: float, span_m: float
-) -> DrydenParams:
+def dryden_params(altitude_m: float, w20_mps: float, airspeed_mps: float, span_m: float) -> DrydenParams:
     """MIL-F-8785C Dryden intensities and scale lengths at an altitude.
 
     Parameters

@@ -7,13 +7,12 @@ import math
 import numpy as np
 import pytest
 from numpy.testing import assert_allclose, assert_array_equal
-
-from sensors.camera import BurstConfig, CameraConfig, CameraReader, ClassifierConfig, frame_draws
-from sensors.timing import plan_frames
-from sim.errors import ScenarioError
-from sim.section import Section
-from sim.seeding import run_generators
-from sim.sensor_section import parse_sensor
+from rollrig.sensors.camera import BurstConfig, CameraConfig, CameraReader, ClassifierConfig, frame_draws
+from rollrig.sensors.timing import plan_frames
+from rollrig.sim.errors import ScenarioError
+from rollrig.sim.section import Section
+from rollrig.sim.seeding import run_generators
+from rollrig.sim.sensor_section import parse_sensor
 
 
 def _rng_for(seed: int, batch: int):
@@ -78,12 +77,18 @@ def test_per_run_latency_and_dropout_arrays():
     assert_allclose(frame_valid, 1.0 - drop, atol=0.02)  # 2500 frames: SE ≤ 1 %
     # a run of the batch with per-run values equals that run alone with floats
     solo = CameraReader(CameraConfig(frame_rate_hz=50.0, latency_s=0.05, dropout_prob=0.2), 0.002)
-    solo.reset(1000, np.arange(0, 1000, 10), 1, lambda name: run_generators(1, [1], name),
-               history=np.zeros((1001, 1)))
+    solo.reset(
+        1000,
+        np.arange(0, 1000, 10),
+        1,
+        lambda name: run_generators(1, [1], name),
+        history=np.zeros((1001, 1)),
+    )
     assert_array_equal(solo.plan.deliver_step[0], cam.plan.deliver_step[1][: solo.plan.n_frames])
     with pytest.raises(ValueError):
         CameraReader(CameraConfig(dropout_prob=np.array([0.1, 0.2])), 0.01).reset(
-            100, np.arange(100), 3, _rng_for(1, 3), history=np.zeros((101, 3)))
+            100, np.arange(100), 3, _rng_for(1, 3), history=np.zeros((101, 3))
+        )
 
 
 def test_per_run_burst_loss_rate():
@@ -99,9 +104,19 @@ def test_per_run_burst_loss_rate():
 def test_adding_a_stage_never_shifts_another_stages_draws():
     rng_for = _rng_for(9, 5)
     base = frame_draws(CameraConfig(noise_rad=0.01, dropout_prob=0.1), 200, rng_for)
-    more = frame_draws(CameraConfig(noise_rad=0.01, dropout_prob=0.1, wander_rad=0.01, jitter_s=0.001,
-                                    outlier_prob=0.1, outlier_rad=0.2,
-                                    bursts=BurstConfig(0.1, 3.0)), 200, rng_for)
+    more = frame_draws(
+        CameraConfig(
+            noise_rad=0.01,
+            dropout_prob=0.1,
+            wander_rad=0.01,
+            jitter_s=0.001,
+            outlier_prob=0.1,
+            outlier_rad=0.2,
+            bursts=BurstConfig(0.1, 3.0),
+        ),
+        200,
+        rng_for,
+    )
     assert_array_equal(base["noise"], more["noise"])
     assert_array_equal(base["dropout"], more["dropout"])
 
@@ -115,8 +130,12 @@ def test_exposure_lags_a_ramp_by_half_the_exposure():
 
 
 def test_classifier_reader_confidence_and_saturation():
-    cfg = CameraConfig(frame_rate_hz=50.0, range_rad=math.radians(30.0), beyond_range="saturate",
-                       classifier=ClassifierConfig(math.radians(5.0), 3.0, "best"))
+    cfg = CameraConfig(
+        frame_rate_hz=50.0,
+        range_rad=math.radians(30.0),
+        beyond_range="saturate",
+        classifier=ClassifierConfig(math.radians(5.0), 3.0, "best"),
+    )
     cam, *_ = _drive(cfg, lambda t: np.radians(40.0) * np.sin(t), n_steps=8000, batch=1)
     vals, valid, conf = cam.frame_readings()
     vals = np.degrees(vals)
@@ -130,10 +149,21 @@ def test_readings_at_ticks_equal_every_frame_evaluated_at_once():
     # second method evaluates every frame in one vectorised call. The stages
     # are pure functions of the recorded bank and the frame's draws, so the
     # tick readings must be exactly the newest valid frame's value.
-    cfg = CameraConfig(frame_rate_hz=30.0, latency_s=0.04, latency_jitter_s=0.01, jitter_s=0.003,
-                       noise_rad=0.01, wander_rad=0.01, outlier_prob=0.05, outlier_rad=0.3,
-                       quantization_rad=0.005, range_rad=0.5, dropout_prob=0.1,
-                       classifier=ClassifierConfig(0.02, 2.0, "weighted"), bursts=BurstConfig(0.1, 3.0))
+    cfg = CameraConfig(
+        frame_rate_hz=30.0,
+        latency_s=0.04,
+        latency_jitter_s=0.01,
+        jitter_s=0.003,
+        noise_rad=0.01,
+        wander_rad=0.01,
+        outlier_prob=0.05,
+        outlier_rad=0.3,
+        quantization_rad=0.005,
+        range_rad=0.5,
+        dropout_prob=0.1,
+        classifier=ClassifierConfig(0.02, 2.0, "weighted"),
+        bursts=BurstConfig(0.1, 3.0),
+    )
     fn = lambda t: 0.6 * np.sin(1.3 * t)  # noqa: E731  (goes beyond the range: invalid frames too)
     cam, _, bank, valid, _ = _drive(cfg, fn, dt=0.01, n_steps=3000, batch=5, every=2)
     values, ok, _ = cam.frame_readings()
@@ -154,10 +184,22 @@ def test_readings_at_ticks_equal_every_frame_evaluated_at_once():
 
 def test_sensor_section_keys_and_errors():
     doc = {
-        "frame_rate_hz": 20.0, "jitter_s": 0.002, "exposure_s": 0.01, "latency_s": 0.08,
-        "latency_jitter_s": 0.01, "noise_deg": 0.3, "wander_deg": 0.5, "wander_time_s": 3.0,
-        "bias_deg": 1.0, "scale": 1.02, "quantization_deg": 0.5, "outlier_prob": 0.01,
-        "outlier_deg": 15.0, "range_deg": 60.0, "beyond_range": "saturate", "dropout_prob": 0.01,
+        "frame_rate_hz": 20.0,
+        "jitter_s": 0.002,
+        "exposure_s": 0.01,
+        "latency_s": 0.08,
+        "latency_jitter_s": 0.01,
+        "noise_deg": 0.3,
+        "wander_deg": 0.5,
+        "wander_time_s": 3.0,
+        "bias_deg": 1.0,
+        "scale": 1.02,
+        "quantization_deg": 0.5,
+        "outlier_prob": 0.01,
+        "outlier_deg": 15.0,
+        "range_deg": 60.0,
+        "beyond_range": "saturate",
+        "dropout_prob": 0.01,
         "classifier": {"class_width_deg": 2.0, "sharpness": 3.0, "decode": "weighted"},
         "bursts": {"loss_rate": 0.1, "mean_burst_frames": 5.0},
         "gyro": {"rate_hz": 50.0, "noise_deg_s": 0.1, "bias_drift_deg_s": 0.05, "bias_drift_time_s": 60.0},
@@ -183,7 +225,7 @@ def test_sensor_section_keys_and_errors():
 
 def test_latest_delivered_matches_per_run_search():
     # second method: a plain per-run searchsorted
-    from sensors.timing import FramePlan
+    from rollrig.sensors.timing import FramePlan
 
     d = np.sort(np.random.default_rng(0).integers(0, 500, (7, 80)), axis=1)
     steps = np.arange(0, 520, 3)[::-1]  # any order of queries

@@ -9,9 +9,8 @@ from __future__ import annotations
 import numpy as np
 import pytest
 from numpy.testing import assert_allclose, assert_array_equal
+from rollrig.sensors import stages
 from scipy.special import softmax
-
-from sensors import stages
 
 
 def _runs(x: np.ndarray) -> np.ndarray:
@@ -183,12 +182,12 @@ def test_exposure_weights_ramp_lag_and_smear():
     # ramp: the exposed reading lags by half the exposure (trapezoid is exact)
     ramp = 3.0 * t
     k = 500
-    assert_allclose(w @ ramp[k - w.size + 1: k + 1], 3.0 * (t[k] - exposure / 2), rtol=1e-12)
+    assert_allclose(w @ ramp[k - w.size + 1 : k + 1], 3.0 * (t[k] - exposure / 2), rtol=1e-12)
     # sinusoid: a box average attenuates by sinc(ωE/2) = sin(ωE/2)/(ωE/2)
     omega = 2 * np.pi * 20.0
     s = np.sin(omega * t)
     ks = np.arange(100, 1000)
-    out = np.array([w @ s[k - w.size + 1: k + 1] for k in ks])
+    out = np.array([w @ s[k - w.size + 1 : k + 1] for k in ks])
     basis = np.column_stack([np.sin(omega * t[ks]), np.cos(omega * t[ks])])
     amp = np.hypot(*np.linalg.lstsq(basis, out, rcond=None)[0])
     x = omega * exposure / 2

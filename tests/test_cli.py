@@ -21,9 +21,9 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-from conftest import BUNDLED, REPO
+from helpers import BUNDLED, REPO
 
-import sim
+import rollrig
 
 PNG_MAGIC = b"\x89PNG\r\n\x1a\n"
 IDS = [p.stem for p in BUNDLED]
@@ -58,11 +58,19 @@ def test_run_writes_complete_folder(cli, tmp_path, scenario):
     assert not [p for p in tmp_path.iterdir() if ".partial-" in p.name]
 
     names = {p.name for p in out.iterdir()}
-    assert {"manifest.json", "metrics.json", "metrics.csv", "trace.npz", "metrics.md",
-            "bank.png", "aileron.png", "envelope.png"} <= names
+    assert {
+        "manifest.json",
+        "metrics.json",
+        "metrics.csv",
+        "trace.npz",
+        "metrics.md",
+        "bank.png",
+        "aileron.png",
+        "envelope.png",
+    } <= names
 
     man = json.loads((out / "manifest.json").read_text())
-    assert man["version"] == sim.__version__
+    assert man["version"] == rollrig.__version__
     assert man["scenario_sha256"] == hashlib.sha256(scenario.read_bytes()).hexdigest()
     assert man["seed"] == doc["run"]["seed"]
     assert man["runs"] == 2
@@ -162,13 +170,12 @@ def test_check_all_bundled(cli):
 @pytest.fixture(scope="module")
 def replayed(tmp_path_factory, uav):
     """Folders of a 3-run batch and of ``--replay 2`` of it."""
-    from sim.cli.main import main
+    from rollrig.sim.cli.main import main
 
     root = tmp_path_factory.mktemp("replay")
     batch, one = root / "batch", root / "one"
     assert main(["run", str(uav), "--runs", "3", "--out", str(batch), "--format", "csv"]) == 0
-    assert main(["run", str(uav), "--runs", "3", "--replay", "2", "--out", str(one),
-                 "--format", "csv"]) == 0
+    assert main(["run", str(uav), "--runs", "3", "--replay", "2", "--out", str(one), "--format", "csv"]) == 0
     return batch, one
 
 
@@ -187,8 +194,9 @@ def test_replay_is_run_n_of_the_batch(replayed):
         assert np.max(np.abs(tb["bank_reading_rad"][1] - tb["bank_reading_rad"][2])) > 1e-3
     for key, values in mb["metrics"].items():
         # metrics.json writes infinities as "inf"; float() reads them back
-        np.testing.assert_allclose(float(mo["metrics"][key][0]), float(values[2]), rtol=1e-10,
-                                   atol=1e-12, err_msg=key)
+        np.testing.assert_allclose(
+            float(mo["metrics"][key][0]), float(values[2]), rtol=1e-10, atol=1e-12, err_msg=key
+        )
 
 
 def test_replay_is_bit_identical(replayed):
@@ -215,8 +223,14 @@ def test_same_seed_same_metrics_other_seed_differs(cli, tmp_path, uav):
 # --------------------------------------------------------------- entry points
 def test_module_help_in_subprocess():
     env = dict(os.environ, PYTHONPATH=str(REPO) + os.pathsep + os.environ.get("PYTHONPATH", ""))
-    res = subprocess.run([sys.executable, "-m", "sim.cli.main", "--help"], cwd=REPO, env=env,
-                         capture_output=True, text=True, timeout=60)
+    res = subprocess.run(
+        [sys.executable, "-m", "rollrig.sim.cli.main", "--help"],
+        cwd=REPO,
+        env=env,
+        capture_output=True,
+        text=True,
+        timeout=60,
+    )
     assert res.returncode == 0, res.stderr
     assert "rollrig" in res.stdout and "run" in res.stdout and "check" in res.stdout
 
@@ -224,16 +238,17 @@ def test_module_help_in_subprocess():
 def test_console_script_version():
     exe = shutil.which("rollrig") or (
         str(Path(sys.executable).parent / "rollrig")
-        if (Path(sys.executable).parent / "rollrig").exists() else None
+        if (Path(sys.executable).parent / "rollrig").exists()
+        else None
     )
     if exe is None:
         pytest.skip("rollrig console script not installed (pip install -e .)")
     res = subprocess.run([exe, "--version"], capture_output=True, text=True, timeout=60)
-    assert res.returncode == 0 and sim.__version__ in res.stdout
+    assert res.returncode == 0 and rollrig.__version__ in res.stdout
 
 
 def test_help_and_version_in_process(cli):
     code, out, _ = cli(["run", "--help"])
     assert code == 0 and "--replay" in out and "--allow-code" in out
     code, out, _ = cli(["--version"])
-    assert code == 0 and sim.__version__ in out
+    assert code == 0 and rollrig.__version__ in out

@@ -7,15 +7,14 @@ import math
 import numpy as np
 import pytest
 from numpy.testing import assert_allclose, assert_array_equal
-
-from controllers.base import Observation
-from controllers.pid import PIDConfig, PIDController
-from sensors.camera import CameraConfig
-from sim import presets
-from sim.actuator import ActuatorSpec
-from sim.core import LoopSetup, Stepper, simulate
-from sim.disturbance import SteadyRollMoment
-from sim.plant import continuous_response
+from rollrig.controllers.base import Observation
+from rollrig.controllers.pid import PIDConfig, PIDController
+from rollrig.sensors.camera import CameraConfig
+from rollrig.sim import presets
+from rollrig.sim.actuator import ActuatorSpec
+from rollrig.sim.core import LoopSetup, Stepper, simulate
+from rollrig.sim.disturbance import SteadyRollMoment
+from rollrig.sim.plant import continuous_response
 
 
 class Constant:
@@ -67,7 +66,7 @@ def test_open_loop_matches_solve_ivp(name):
 
 def test_servo_lag_in_the_loop_matches_solve_ivp():
     """Unsaturated servo lag: core equals ODE integration of plant + servo as one system."""
-    from sim.plant import LinearPlant
+    from rollrig.sim.plant import LinearPlant
 
     plant = presets.light_single()
     tau, u = 0.08, 0.03
@@ -81,8 +80,9 @@ def test_servo_lag_in_the_loop_matches_solve_ivp():
     aug = LinearPlant("aug", a, b, np.zeros((n + 1, 4)), (*plant.state_names, "servo"), plant.airspeed_mps)
     setup = _setup(plant, n=200, act=ActuatorSpec(tau, 1.0, math.inf))
     tr = simulate(setup, Constant(u), seed=0, record_states=True)
-    ref = continuous_response(aug, tr.t, np.tile([u, 0.0], (tr.t.size, 1)), np.zeros((tr.t.size, 4)),
-                              np.zeros(n + 1))
+    ref = continuous_response(
+        aug, tr.t, np.tile([u, 0.0], (tr.t.size, 1)), np.zeros((tr.t.size, 4)), np.zeros(n + 1)
+    )
     assert_allclose(tr.states[0], ref[:, :n], rtol=1e-9, atol=1e-12)
     assert_allclose(tr.aileron[0], ref[:, n], rtol=1e-9, atol=1e-12)
 
@@ -128,13 +128,19 @@ def test_reading_is_bank_at_capture_and_age_is_latency_plus_hold():
 
 
 def _noisy_setup(n=500):
-    from sim.turbulence import INTENSITY_W20_MPS, DrydenTurbulence, dryden_params
+    from rollrig.sim.turbulence import INTENSITY_W20_MPS, DrydenTurbulence, dryden_params
 
-    cam = CameraConfig(frame_rate_hz=30, latency_s=0.05, noise_rad=math.radians(0.5),
-                       quantization_rad=math.radians(0.5), dropout_prob=0.1)
+    cam = CameraConfig(
+        frame_rate_hz=30,
+        latency_s=0.05,
+        noise_rad=math.radians(0.5),
+        quantization_rad=math.radians(0.5),
+        dropout_prob=0.1,
+    )
     plant = presets.light_single()
-    turb = DrydenTurbulence(dryden_params(200.0, INTENSITY_W20_MPS["moderate"], plant.airspeed_mps,
-                                          plant.span_m))
+    turb = DrydenTurbulence(
+        dryden_params(200.0, INTENSITY_W20_MPS["moderate"], plant.airspeed_mps, plant.span_m)
+    )
     return _setup(n=n, cam=cam, cmd=math.radians(10), dist=(SteadyRollMoment(0.2), turb))
 
 
@@ -162,8 +168,9 @@ def test_batch_of_n_equals_n_single_runs():
 def test_controllers_see_identical_sensor_randomness():
     """Common random numbers: frame losses and noise draws do not depend on the controller."""
     a = simulate(_noisy_setup(), _pid(), seed=2, run_indices=range(4))
-    b = simulate(_noisy_setup(), PIDController(PIDConfig(kp=0.3, ki_per_s=0.0, kd_s=0.0)),
-                 seed=2, run_indices=range(4))
+    b = simulate(
+        _noisy_setup(), PIDController(PIDConfig(kp=0.3, ki_per_s=0.0, kd_s=0.0)), seed=2, run_indices=range(4)
+    )
     assert_array_equal(a.valid, b.valid)
     assert not np.allclose(a.bank, b.bank)
 
@@ -240,17 +247,35 @@ def test_input_gain_and_delay_perturbation():
 def test_run_alone_equals_run_in_batch_with_every_sensor_stage():
     """Replay is exact with jitter, exposure, random latency, wander, outliers, a weighted
     classifier, bursty losses and a drifting gyro (each stage draws per run)."""
-    from sensors.camera import BurstConfig, ClassifierConfig
-    from sensors.gyro import GyroConfig
+    from rollrig.sensors.camera import BurstConfig, ClassifierConfig
+    from rollrig.sensors.gyro import GyroConfig
 
     d = math.radians
-    cam = CameraConfig(frame_rate_hz=30, latency_s=0.05, noise_rad=d(0.3), quantization_rad=d(0.5),
-                       jitter_s=0.003, exposure_s=0.02, latency_jitter_s=0.01, wander_rad=d(0.3),
-                       wander_time_s=2.0, bias_rad=d(0.5), scale=1.01, outlier_prob=0.02,
-                       outlier_rad=d(15.0), range_rad=d(60.0),
-                       classifier=ClassifierConfig(d(1.0), 4.0, "weighted"), bursts=BurstConfig(0.1, 3.0))
-    gyro = GyroConfig(rate_hz=100.0, noise_rad_s=d(0.05), bias_rad_s=d(0.1), bias_drift_rad_s=d(0.02),
-                      bias_drift_time_s=100.0)
+    cam = CameraConfig(
+        frame_rate_hz=30,
+        latency_s=0.05,
+        noise_rad=d(0.3),
+        quantization_rad=d(0.5),
+        jitter_s=0.003,
+        exposure_s=0.02,
+        latency_jitter_s=0.01,
+        wander_rad=d(0.3),
+        wander_time_s=2.0,
+        bias_rad=d(0.5),
+        scale=1.01,
+        outlier_prob=0.02,
+        outlier_rad=d(15.0),
+        range_rad=d(60.0),
+        classifier=ClassifierConfig(d(1.0), 4.0, "weighted"),
+        bursts=BurstConfig(0.1, 3.0),
+    )
+    gyro = GyroConfig(
+        rate_hz=100.0,
+        noise_rad_s=d(0.05),
+        bias_rad_s=d(0.1),
+        bias_drift_rad_s=d(0.02),
+        bias_drift_time_s=100.0,
+    )
     base = _setup(n=800, cam=cam, cmd=math.radians(15))
     setup = LoopSetup(**{**base.__dict__, "gyro": gyro})
     pid = lambda: PIDController(PIDConfig(kp=0.6, ki_per_s=0.15, kd_s=0.08, derivative_source="gyro"))  # noqa: E731

@@ -14,8 +14,7 @@ import control as ct
 import numpy as np
 import pytest
 from numpy.testing import assert_allclose
-
-from sim.analysis.empirical import (
+from rollrig.sim.analysis.empirical import (
     LOSS_RESOLUTION,
     EmpiricalSettings,
     bank_step_time,
@@ -23,25 +22,44 @@ from sim.analysis.empirical import (
     quiet_scenario,
     settle_verdict,
 )
-from sim.analysis.handling import Level
-from sim.analysis.linear_loop import LoopParts, margins, open_loop_response, rational_loop
-from sim.analysis.loop_from_scenario import camera_delay, loop_parts_from_scenario
-from sim.analysis.margins_report import margins_report
-from sim.errors import ScenarioError
-from sim.scenario import parse_scenario
+from rollrig.sim.analysis.handling import Level
+from rollrig.sim.analysis.linear_loop import LoopParts, margins, open_loop_response, rational_loop
+from rollrig.sim.analysis.loop_from_scenario import camera_delay, loop_parts_from_scenario
+from rollrig.sim.analysis.margins_report import margins_report
+from rollrig.sim.errors import ScenarioError
+from rollrig.sim.scenario import parse_scenario
 
 A1, A2 = 8.4, 28.9  # roll-only plant a2/(s(s+a1)): Lp and |L_da| of the light airplane (REFERENCES.md)
 
 
-def doc(*, model: dict, latency: float, frame_hz: float, pid: dict, ctrl_hz: float = 50.0,
-        servo_tau: float = 0.08, base_step: float = 0.01, sensor_extra: dict | None = None,
-        actuator_extra: dict | None = None) -> dict:
-    sensor = {"frame_rate_hz": frame_hz, "latency_s": latency, "noise_deg": 0.3,
-              "quantization_deg": 0.5, "dropout_prob": 0.05, **(sensor_extra or {})}
+def doc(
+    *,
+    model: dict,
+    latency: float,
+    frame_hz: float,
+    pid: dict,
+    ctrl_hz: float = 50.0,
+    servo_tau: float = 0.08,
+    base_step: float = 0.01,
+    sensor_extra: dict | None = None,
+    actuator_extra: dict | None = None,
+) -> dict:
+    sensor = {
+        "frame_rate_hz": frame_hz,
+        "latency_s": latency,
+        "noise_deg": 0.3,
+        "quantization_deg": 0.5,
+        "dropout_prob": 0.05,
+        **(sensor_extra or {}),
+    }
     return {
         "aircraft": model,
-        "actuator": {"time_constant_s": servo_tau, "limit_deg": 20.0, "rate_limit_deg_s": 60.0,
-                     **(actuator_extra or {})},
+        "actuator": {
+            "time_constant_s": servo_tau,
+            "limit_deg": 20.0,
+            "rate_limit_deg_s": 60.0,
+            **(actuator_extra or {}),
+        },
         "sensor": sensor,
         "controller": {"kind": "pid", "rate_hz": ctrl_hz, "stale_after_s": 0.6, **pid},
         "disturbance": {"roll_moment_deg_s2": 2.0},
@@ -54,14 +72,19 @@ UAV = {"model": "small-uav", "airspeed_mps": 22.0}
 
 # Three PID loops with different camera latencies and frame rates (the agreement test).
 AGREEMENT = {
-    "light 60 Hz, 20 ms, PID+D": doc(model=LIGHT, latency=0.02, frame_hz=60.0,
-                                     pid={"kp": 0.6, "ki_per_s": 0.15, "kd_s": 0.08,
-                                          "derivative_filter_hz": 4.0}),
-    "light 25 Hz, 80 ms, PID+D": doc(model=LIGHT, latency=0.08, frame_hz=25.0,
-                                     pid={"kp": 0.5, "ki_per_s": 0.1, "kd_s": 0.05,
-                                          "derivative_filter_hz": 3.0}),
-    "UAV 10 Hz, 150 ms, PI": doc(model=UAV, latency=0.15, frame_hz=10.0,
-                                 pid={"kp": 0.25, "ki_per_s": 0.05}),
+    "light 60 Hz, 20 ms, PID+D": doc(
+        model=LIGHT,
+        latency=0.02,
+        frame_hz=60.0,
+        pid={"kp": 0.6, "ki_per_s": 0.15, "kd_s": 0.08, "derivative_filter_hz": 4.0},
+    ),
+    "light 25 Hz, 80 ms, PID+D": doc(
+        model=LIGHT,
+        latency=0.08,
+        frame_hz=25.0,
+        pid={"kp": 0.5, "ki_per_s": 0.1, "kd_s": 0.05, "derivative_filter_hz": 3.0},
+    ),
+    "UAV 10 Hz, 150 ms, PI": doc(model=UAV, latency=0.15, frame_hz=10.0, pid={"kp": 0.25, "ki_per_s": 0.05}),
 }
 
 
@@ -71,9 +94,16 @@ AGREEMENT = {
 
 
 def roll_only_doc(kp: float, latency: float, frame_hz: float, ctrl_hz: float = 100.0) -> dict:
-    return doc(model={"model": "roll-only", "roll_damping_per_s": A1, "aileron_power_per_s2": A2},
-               latency=latency, frame_hz=frame_hz, pid={"kp": kp}, ctrl_hz=ctrl_hz, servo_tau=0.0,
-               base_step=0.005, actuator_extra={"limit_deg": 60.0, "rate_limit_deg_s": 5000.0})
+    return doc(
+        model={"model": "roll-only", "roll_damping_per_s": A1, "aileron_power_per_s2": A2},
+        latency=latency,
+        frame_hz=frame_hz,
+        pid={"kp": kp},
+        ctrl_hz=ctrl_hz,
+        servo_tau=0.0,
+        base_step=0.005,
+        actuator_extra={"limit_deg": 60.0, "rate_limit_deg_s": 5000.0},
+    )
 
 
 def test_camera_delay_budget_and_loop_parts() -> None:
@@ -82,14 +112,25 @@ def test_camera_delay_budget_and_loop_parts() -> None:
     # Worked by hand: 25 Hz frames (40 ms) delivered 80 ms after capture, exactly on the
     # 50 Hz ticks (20 ms). At the ticks the reading is 80 or 100 ms old -> mean 90 ms: the
     # frame hold is 10 ms, not T/2 = 20 ms, because the ticks are locked to the frames.
-    assert_allclose([d.latency_s, d.frame_hold_s, d.exposure_mid_s, d.total_s],
-                    [0.08, 0.01, 0.0, 0.09], rtol=1e-3)  # finite averaging horizon: ≤ 0.1 %
+    assert_allclose(
+        [d.latency_s, d.frame_hold_s, d.exposure_mid_s, d.total_s], [0.08, 0.01, 0.0, 0.09], rtol=1e-3
+    )  # finite averaging horizon: ≤ 0.1 %
     lp = loop_parts_from_scenario(sc)
     # D path: new reading at 80 ms age, difference centred 20 ms earlier -> 100 ms, the same
     # as the P path (90 ms + 10 ms tick hold): no extra delay. The filter moves once per
     # new reading (every 40 ms) with the 20 ms coefficient: corner 3 Hz · 20/40 = 1.5 Hz.
-    assert_allclose([lp.camera_delay_s, lp.controller_dt_s, lp.actuator_tau_s, lp.derivative_delay_s,
-                     lp.derivative_filter_hz], [0.09, 0.02, 0.08, 0.0, 1.5], rtol=1e-3, atol=1e-12)
+    assert_allclose(
+        [
+            lp.camera_delay_s,
+            lp.controller_dt_s,
+            lp.actuator_tau_s,
+            lp.derivative_delay_s,
+            lp.derivative_filter_hz,
+        ],
+        [0.09, 0.02, 0.08, 0.0, 1.5],
+        rtol=1e-3,
+        atol=1e-12,
+    )
     assert (lp.kp, lp.ki_per_s, lp.kd_s, lp.derivative_source) == (0.5, 0.1, 0.05, "measurement")
 
 
@@ -101,8 +142,9 @@ def test_non_pid_controller_has_no_linear_model() -> None:
 
 
 @pytest.mark.parametrize("kp, latency, frame_hz", [(0.5, 0.0, 100.0), (1.2, 0.05, 50.0)])
-def test_second_order_loop_identities_through_the_scenario(kp: float, latency: float,
-                                                           frame_hz: float) -> None:
+def test_second_order_loop_identities_through_the_scenario(
+    kp: float, latency: float, frame_hz: float
+) -> None:
     """Roll-only plant, P control, no servo: L = kp a2 / (s (s + a1)) · e^{-sτ}.
 
     Textbook formula (REFERENCES.md "Loop margins"): for ωn²/(s(s+2ζωn)),
@@ -139,9 +181,20 @@ def test_roll_only_empirical_delay_margin_matches_pm_over_wc() -> None:
 
 def test_derivative_delay_matches_direct_formula() -> None:
     """LoopParts.derivative_delay_s against the loop formula evaluated with numpy."""
-    parts = LoopParts(plant_a=[[-A1, 0.0], [1.0, 0.0]], plant_b=[A2, 0.0], phi_index=1, p_index=0,
-                      actuator_tau_s=0.07, camera_delay_s=0.06, controller_dt_s=0.02, kp=0.6,
-                      ki_per_s=0.2, kd_s=0.08, derivative_filter_hz=4.0, derivative_delay_s=0.02)
+    parts = LoopParts(
+        plant_a=[[-A1, 0.0], [1.0, 0.0]],
+        plant_b=[A2, 0.0],
+        phi_index=1,
+        p_index=0,
+        actuator_tau_s=0.07,
+        camera_delay_s=0.06,
+        controller_dt_s=0.02,
+        kp=0.6,
+        ki_per_s=0.2,
+        kd_s=0.08,
+        derivative_filter_hz=4.0,
+        derivative_delay_s=0.02,
+    )
     w = np.logspace(-1, 2, 301)
     s = 1j * w
     wf = 2 * math.pi * 4.0
@@ -163,14 +216,16 @@ def test_settle_verdict_on_known_envelopes() -> None:
     t = np.arange(0.0, 30.0, 0.01)
     phi0 = math.radians(1.0)
     osc = np.sin(3.0 * t)
-    bank = np.stack([
-        phi0 * np.exp(-0.05 * t) * osc,          # decaying: settles
-        0.3 * phi0 * np.exp(+0.02 * t) * osc,    # slowly growing, still small: does not settle
-        1.5 * phi0 * osc,                        # limit cycle above the start: does not settle
-        phi0 * np.exp(-0.05 * t) * osc + np.where(t > 5, 1.0, 0.0),  # crosses a 30° limit
-        phi0 * np.exp(-0.05 * t) * osc,          # diverged per the core
-        np.zeros_like(t),                        # exactly at rest: settles
-    ])
+    bank = np.stack(
+        [
+            phi0 * np.exp(-0.05 * t) * osc,  # decaying: settles
+            0.3 * phi0 * np.exp(+0.02 * t) * osc,  # slowly growing, still small: does not settle
+            1.5 * phi0 * osc,  # limit cycle above the start: does not settle
+            phi0 * np.exp(-0.05 * t) * osc + np.where(t > 5, 1.0, 0.0),  # crosses a 30° limit
+            phi0 * np.exp(-0.05 * t) * osc,  # diverged per the core
+            np.zeros_like(t),  # exactly at rest: settles
+        ]
+    )
     rate = np.gradient(bank, t, axis=1)
     diverged = np.array([False, False, False, False, True, False])
     settled, growth = settle_verdict(bank, rate, 1000, phi0, math.radians(30.0), diverged)
@@ -209,8 +264,10 @@ def test_empirical_margins_agree_with_analytic(name: str) -> None:
     sc = parse_scenario(AGREEMENT[name])
     m = margins(loop_parts_from_scenario(sc))
     assert m.closed_loop_stable
-    e = empirical_margins(sc, EmpiricalSettings(
-        loss=False, oscillation_rad_s=min(m.gain_crossover_rad_s, m.phase_crossover_rad_s)))
+    e = empirical_margins(
+        sc,
+        EmpiricalSettings(loss=False, oscillation_rad_s=min(m.gain_crossover_rad_s, m.phase_crossover_rad_s)),
+    )
     assert e.nominal_settles and e.gain.bounded and e.delay.bounded
     gm_factor = 10.0 ** (m.upper_gain_margin_db / 20.0)
     assert_allclose(e.gain.value, gm_factor, rtol=0.10)

@@ -6,11 +6,10 @@ import json
 
 import numpy as np
 import pytest
-
-from sim.analysis.fault_ranking import active_faults, rank_faults
-from sim.cli.main import main
-from sim.runner import run_scenario
-from sim.scenario import parse_scenario
+from rollrig.sim.analysis.fault_ranking import active_faults, rank_faults
+from rollrig.sim.cli.main import main
+from rollrig.sim.runner import run_scenario
+from rollrig.sim.scenario import parse_scenario
 
 
 def _doc(sensor: dict, *, gyro: dict | None = None, runs: int = 8) -> dict:

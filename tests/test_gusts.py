@@ -8,14 +8,13 @@ import tomllib
 import numpy as np
 import pytest
 from numpy.testing import assert_allclose
-
-from sim.disturbance import DisturbanceSet, DisturbanceSource, SteadyRollMoment
-from sim.disturbance_section import parse_disturbance
-from sim.errors import ScenarioError
-from sim.gusts import OneMinusCosineGust, one_minus_cosine
-from sim.section import Section
-from sim.seeding import run_generators
-from sim.turbulence import DrydenParams, DrydenTurbulence, dryden_params
+from rollrig.sim.disturbance import DisturbanceSet, DisturbanceSource, SteadyRollMoment
+from rollrig.sim.disturbance_section import parse_disturbance
+from rollrig.sim.errors import ScenarioError
+from rollrig.sim.gusts import OneMinusCosineGust, one_minus_cosine
+from rollrig.sim.section import Section
+from rollrig.sim.seeding import run_generators
+from rollrig.sim.turbulence import DrydenParams, DrydenTurbulence, dryden_params
 
 V, B = 50.0, 10.0
 
@@ -175,58 +174,178 @@ TURB = "[disturbance.turbulence]\n"
 GUST = "[[disturbance.gust]]\nonset_s = 1.0\nlength_m = 30.0\n"
 BAD = [
     # (scenario text, key named, path named, extra words expected, has_gust_inputs)
-    ("[disturbance]\nroll_moment_deg_s = 2.0\n", "roll_moment_deg_s", "[disturbance]",
-     "did you mean 'roll_moment_deg_s2'", True),
-    ("[disturbance]\nroll_moment_deg_s2 = 900.0\n", "roll_moment_deg_s2", "[disturbance]",
-     "-500 ≤ roll_moment_deg_s2 ≤ 500", True),
-    ("[disturbance]\nroll_moment_step_deg_s2 = 1.0\n", "roll_moment_step_time_s", "[disturbance]",
-     "allowed", True),
-    ("[disturbance]\nroll_moment_step_time_s = 5.0\n", "roll_moment_step_time_s", "[disturbance]",
-     "allowed", True),
-    ("[disturbance]\nroll_moment_step_deg_s2 = 1.0\nroll_moment_step_time_s = -2.0\n",
-     "roll_moment_step_time_s", "[disturbance]", "0 ≤ roll_moment_step_time_s", True),
-    (TURB + 'intensity = "strong"\naltitude_ft = 500\n', "intensity", "[disturbance.turbulence]",
-     "'light', 'moderate', 'severe'", True),
-    (TURB + 'intensity = "light"\nwind_20ft_kt = 20\naltitude_ft = 500\n', "wind_20ft_kt",
-     "[disturbance.turbulence]", "allowed: one of the two", True),
+    (
+        "[disturbance]\nroll_moment_deg_s = 2.0\n",
+        "roll_moment_deg_s",
+        "[disturbance]",
+        "did you mean 'roll_moment_deg_s2'",
+        True,
+    ),
+    (
+        "[disturbance]\nroll_moment_deg_s2 = 900.0\n",
+        "roll_moment_deg_s2",
+        "[disturbance]",
+        "-500 ≤ roll_moment_deg_s2 ≤ 500",
+        True,
+    ),
+    (
+        "[disturbance]\nroll_moment_step_deg_s2 = 1.0\n",
+        "roll_moment_step_time_s",
+        "[disturbance]",
+        "allowed",
+        True,
+    ),
+    (
+        "[disturbance]\nroll_moment_step_time_s = 5.0\n",
+        "roll_moment_step_time_s",
+        "[disturbance]",
+        "allowed",
+        True,
+    ),
+    (
+        "[disturbance]\nroll_moment_step_deg_s2 = 1.0\nroll_moment_step_time_s = -2.0\n",
+        "roll_moment_step_time_s",
+        "[disturbance]",
+        "0 ≤ roll_moment_step_time_s",
+        True,
+    ),
+    (
+        TURB + 'intensity = "strong"\naltitude_ft = 500\n',
+        "intensity",
+        "[disturbance.turbulence]",
+        "'light', 'moderate', 'severe'",
+        True,
+    ),
+    (
+        TURB + 'intensity = "light"\nwind_20ft_kt = 20\naltitude_ft = 500\n',
+        "wind_20ft_kt",
+        "[disturbance.turbulence]",
+        "allowed: one of the two",
+        True,
+    ),
     (TURB + "altitude_ft = 500\n", "intensity", "[disturbance.turbulence]", "allowed", True),
-    (TURB + 'intensity = "light"\n', "altitude_ft", "[disturbance.turbulence]",
-     "0 ≤ altitude_ft ≤ 100000", True),
-    (TURB + 'intensity = "light"\naltitude_ft = -5\n', "altitude_ft", "[disturbance.turbulence]",
-     "0 ≤ altitude_ft ≤ 100000", True),
-    (TURB + "wind_20ft_kt = 150\naltitude_ft = 500\n", "wind_20ft_kt", "[disturbance.turbulence]",
-     "0 ≤ wind_20ft_kt ≤ 100", True),
-    (TURB + "sigma_v_mps = 2.0\nsigma_w_mps = 1.0\nlength_v_m = 100.0\n", "length_w_m",
-     "[disturbance.turbulence]", "allowed: all of", True),
-    (TURB + "sigma_v_mps = 2.0\nsigma_w_mps = 1.0\nlength_v_m = 100.0\nlength_w_m = 50.0\n"
-     'intensity = "light"\n', "intensity", "[disturbance.turbulence]", "allowed", True),
-    (TURB + "sigma_v_mps = 99.0\nsigma_w_mps = 1.0\nlength_v_m = 100.0\nlength_w_m = 50.0\n",
-     "sigma_v_mps", "[disturbance.turbulence]", "0 ≤ sigma_v_mps ≤ 30", True),
-    (TURB + "sigma_v_mps = 1.0\nsigma_w_mps = 1.0\nlength_v_m = 0.0\nlength_w_m = 50.0\n",
-     "length_v_m", "[disturbance.turbulence]", "0 < length_v_m ≤ 5000", True),
-    (TURB + 'intensity = "light"\naltitude_ft = 500\nscale = 2\n', "scale",
-     "[disturbance.turbulence]", "known keys", True),
-    (TURB + 'intensity = "light"\naltitude_ft = 500\n', "turbulence", "[disturbance]",
-     "no gust inputs", False),
+    (
+        TURB + 'intensity = "light"\n',
+        "altitude_ft",
+        "[disturbance.turbulence]",
+        "0 ≤ altitude_ft ≤ 100000",
+        True,
+    ),
+    (
+        TURB + 'intensity = "light"\naltitude_ft = -5\n',
+        "altitude_ft",
+        "[disturbance.turbulence]",
+        "0 ≤ altitude_ft ≤ 100000",
+        True,
+    ),
+    (
+        TURB + "wind_20ft_kt = 150\naltitude_ft = 500\n",
+        "wind_20ft_kt",
+        "[disturbance.turbulence]",
+        "0 ≤ wind_20ft_kt ≤ 100",
+        True,
+    ),
+    (
+        TURB + "sigma_v_mps = 2.0\nsigma_w_mps = 1.0\nlength_v_m = 100.0\n",
+        "length_w_m",
+        "[disturbance.turbulence]",
+        "allowed: all of",
+        True,
+    ),
+    (
+        TURB + "sigma_v_mps = 2.0\nsigma_w_mps = 1.0\nlength_v_m = 100.0\nlength_w_m = 50.0\n"
+        'intensity = "light"\n',
+        "intensity",
+        "[disturbance.turbulence]",
+        "allowed",
+        True,
+    ),
+    (
+        TURB + "sigma_v_mps = 99.0\nsigma_w_mps = 1.0\nlength_v_m = 100.0\nlength_w_m = 50.0\n",
+        "sigma_v_mps",
+        "[disturbance.turbulence]",
+        "0 ≤ sigma_v_mps ≤ 30",
+        True,
+    ),
+    (
+        TURB + "sigma_v_mps = 1.0\nsigma_w_mps = 1.0\nlength_v_m = 0.0\nlength_w_m = 50.0\n",
+        "length_v_m",
+        "[disturbance.turbulence]",
+        "0 < length_v_m ≤ 5000",
+        True,
+    ),
+    (
+        TURB + 'intensity = "light"\naltitude_ft = 500\nscale = 2\n',
+        "scale",
+        "[disturbance.turbulence]",
+        "known keys",
+        True,
+    ),
+    (
+        TURB + 'intensity = "light"\naltitude_ft = 500\n',
+        "turbulence",
+        "[disturbance]",
+        "no gust inputs",
+        False,
+    ),
     (GUST + "amplitude_mps = 3.0\n", "gust", "[disturbance]", "no gust inputs", False),
-    (GUST.replace("30.0", "0.0") + "amplitude_mps = 3.0\n", "length_m",
-     "[disturbance.gust #1]", "0 < length_m ≤ 10000", True),
-    (GUST + 'amplitude_mps = 3.0\nchannel = "yaw"\n', "channel", "[disturbance.gust #1]",
-     "'side', 'roll'", True),
-    (GUST + "amplitude_deg_s = 3.0\n", "amplitude_deg_s", "[disturbance.gust #1]",
-     "allowed for a side gust: amplitude_mps", True),
-    (GUST + 'amplitude_mps = 3.0\nchannel = "roll"\n', "amplitude_mps", "[disturbance.gust #1]",
-     "allowed for a roll gust: amplitude_deg_s", True),
-    (GUST + "amplitude_mps = 80.0\n", "amplitude_mps", "[disturbance.gust #1]",
-     "-50 ≤ amplitude_mps ≤ 50", True),
-    (GUST + "amplitude_mps = 1.0\n" + GUST + "amplitude_mps = 1.0\nonset_s_ = 3\n", "onset_s_",
-     "[disturbance.gust #2]", "did you mean 'onset_s'", True),
-    ("[disturbance]\ngust = {onset_s = 1.0}\n", "gust", "[disturbance]",
-     "must be an array of tables", True),
-    ("[[disturbance.gust]]\nlength_m = 30.0\namplitude_mps = 1.0\n", "onset_s",
-     "[disturbance.gust #1]", "is required; allowed: 0 ≤ onset_s", True),
-    ("[[disturbance.gust]]\nonset_s = 1.0\nlength_m = 30.0\nchannel = \"roll\"\n",
-     "amplitude_deg_s", "[disturbance.gust #1]", "-180 ≤ amplitude_deg_s ≤ 180", True),
+    (
+        GUST.replace("30.0", "0.0") + "amplitude_mps = 3.0\n",
+        "length_m",
+        "[disturbance.gust #1]",
+        "0 < length_m ≤ 10000",
+        True,
+    ),
+    (
+        GUST + 'amplitude_mps = 3.0\nchannel = "yaw"\n',
+        "channel",
+        "[disturbance.gust #1]",
+        "'side', 'roll'",
+        True,
+    ),
+    (
+        GUST + "amplitude_deg_s = 3.0\n",
+        "amplitude_deg_s",
+        "[disturbance.gust #1]",
+        "allowed for a side gust: amplitude_mps",
+        True,
+    ),
+    (
+        GUST + 'amplitude_mps = 3.0\nchannel = "roll"\n',
+        "amplitude_mps",
+        "[disturbance.gust #1]",
+        "allowed for a roll gust: amplitude_deg_s",
+        True,
+    ),
+    (
+        GUST + "amplitude_mps = 80.0\n",
+        "amplitude_mps",
+        "[disturbance.gust #1]",
+        "-50 ≤ amplitude_mps ≤ 50",
+        True,
+    ),
+    (
+        GUST + "amplitude_mps = 1.0\n" + GUST + "amplitude_mps = 1.0\nonset_s_ = 3\n",
+        "onset_s_",
+        "[disturbance.gust #2]",
+        "did you mean 'onset_s'",
+        True,
+    ),
+    ("[disturbance]\ngust = {onset_s = 1.0}\n", "gust", "[disturbance]", "must be an array of tables", True),
+    (
+        "[[disturbance.gust]]\nlength_m = 30.0\namplitude_mps = 1.0\n",
+        "onset_s",
+        "[disturbance.gust #1]",
+        "is required; allowed: 0 ≤ onset_s",
+        True,
+    ),
+    (
+        '[[disturbance.gust]]\nonset_s = 1.0\nlength_m = 30.0\nchannel = "roll"\n',
+        "amplitude_deg_s",
+        "[disturbance.gust #1]",
+        "-180 ≤ amplitude_deg_s ≤ 180",
+        True,
+    ),
 ]
 
 

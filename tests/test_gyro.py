@@ -4,9 +4,8 @@ from __future__ import annotations
 
 import numpy as np
 from numpy.testing import assert_allclose, assert_array_equal
-
-from sensors.gyro import GyroConfig, RateGyro, gyro_errors
-from sim.seeding import run_generators
+from rollrig.sensors.gyro import GyroConfig, RateGyro, gyro_errors
+from rollrig.sim.seeding import run_generators
 
 
 def _rng_for(batch: int, seed: int = 5):
@@ -21,8 +20,9 @@ def test_noise_bias_and_drift_statistics():
     assert_allclose(noise_only.mean(), 0.002, atol=5 * 0.01 / np.sqrt(batch * n))
     assert_allclose(noise_only.std(), 0.01, rtol=0.01)  # SE 0.1 %
     sigma, tau = 0.003, 2.0
-    drift = gyro_errors(GyroConfig(rate_hz=rate, bias_drift_rad_s=sigma, bias_drift_time_s=tau), n,
-                        _rng_for(batch))
+    drift = gyro_errors(
+        GyroConfig(rate_hz=rate, bias_drift_rad_s=sigma, bias_drift_time_s=tau), n, _rng_for(batch)
+    )
     # effective samples ≈ N(1−a)/(1+a) ≈ 8000 → SE of std ≈ 0.8 %; 5 %
     assert_allclose(drift.std(), sigma, rtol=0.05)
     lags = np.array([10, 50, 100])  # 0.2, 1, 2 s
@@ -30,8 +30,13 @@ def test_noise_bias_and_drift_statistics():
     rho = np.array([np.mean(d[:, k:] * d[:, :-k]) for k in lags]) / d.var()
     assert_allclose(rho, np.exp(-lags / rate / tau), atol=0.04)
     # drift and noise come from separate streams: adding drift leaves the noise alone
-    both = gyro_errors(GyroConfig(rate_hz=rate, noise_rad_s=0.01, bias_rad_s=0.002,
-                                  bias_drift_rad_s=sigma, bias_drift_time_s=tau), n, _rng_for(batch))
+    both = gyro_errors(
+        GyroConfig(
+            rate_hz=rate, noise_rad_s=0.01, bias_rad_s=0.002, bias_drift_rad_s=sigma, bias_drift_time_s=tau
+        ),
+        n,
+        _rng_for(batch),
+    )
     assert_allclose(both, noise_only + drift, atol=1e-15)
 
 

@@ -7,8 +7,7 @@ import math
 import numpy as np
 import pytest
 from numpy.testing import assert_allclose
-
-from sim.analysis.handling import (
+from rollrig.sim.analysis.handling import (
     Level,
     identify_modes,
     rate_dutch_roll,

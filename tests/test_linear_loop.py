@@ -8,8 +8,7 @@ import control as ct
 import numpy as np
 import pytest
 from numpy.testing import assert_allclose
-
-from sim.analysis.linear_loop import (
+from rollrig.sim.analysis.linear_loop import (
     LoopParts,
     closed_loop_response,
     margins,
@@ -103,9 +102,7 @@ def test_margins_agree_with_python_control_on_high_order_pade(source: str) -> No
 
     pid_pi = parts.kp + parts.ki_per_s / s
     if source == "measurement":
-        loop = (pid_pi + parts.kd_s * s / (1 + s / wf)) * act * plant * pade(
-            parts.camera_delay_s + hold
-        )
+        loop = (pid_pi + parts.kd_s * s / (1 + s / wf)) * act * plant * pade(parts.camera_delay_s + hold)
     else:
         loop = pid_pi * act * plant * pade(parts.camera_delay_s + hold) + (
             parts.kd_s / (1 + s / wf) * act * plant * s * pade(parts.gyro_delay_s + hold, 3)
@@ -183,10 +180,8 @@ def test_disk_margin_hand_case() -> None:
         assert_allclose(m.disk_frequency_rad_s, math.sqrt(k), rtol=1e-4)
         # balanced disk: gains (2-a)/(2+a) .. (2+a)/(2-a), phase 2 atan(a/2)
         # (Seiler, Packard & Gahinet, "An Introduction to Disk Margins", IEEE CSM 2020)
-        assert_allclose(m.disk_gain_margin_db, 20 * math.log10((2 + alpha) / (2 - alpha)),
-                        rtol=1e-9)
-        assert_allclose(m.disk_phase_margin_deg, math.degrees(2 * math.atan(alpha / 2)),
-                        rtol=1e-9)
+        assert_allclose(m.disk_gain_margin_db, 20 * math.log10((2 + alpha) / (2 - alpha)), rtol=1e-9)
+        assert_allclose(m.disk_phase_margin_deg, math.degrees(2 * math.atan(alpha / 2)), rtol=1e-9)
 
 
 @pytest.mark.parametrize(

@@ -7,11 +7,10 @@ from pathlib import Path
 
 import pytest
 from numpy.testing import assert_allclose
-
-from sim.analysis.linear_loop import margins
-from sim.analysis.loop_from_scenario import loop_parts_from_scenario
-from sim.cli.main import main
-from sim.scenario import load_scenario
+from rollrig.sim.analysis.linear_loop import margins
+from rollrig.sim.analysis.loop_from_scenario import loop_parts_from_scenario
+from rollrig.sim.cli.main import main
+from rollrig.sim.scenario import load_scenario
 
 SCENARIO = """
 [scenario]
@@ -82,8 +81,12 @@ def test_margins_table_printed(scenario_file: Path, capsys) -> None:
 
 def test_margins_plot_writes_png_and_manifest(scenario_file: Path, tmp_path: Path, capsys) -> None:
     out = tmp_path / "m"
-    assert main(["margins", str(scenario_file), "--no-empirical", "--plot", "--out", str(out),
-                 "--format", "csv"]) == 0
+    assert (
+        main(
+            ["margins", str(scenario_file), "--no-empirical", "--plot", "--out", str(out), "--format", "csv"]
+        )
+        == 0
+    )
     png = (out / "margins.png").read_bytes()
     assert png[:8] == b"\x89PNG\r\n\x1a\n"
     man = json.loads((out / "manifest.json").read_text())
@@ -91,10 +94,13 @@ def test_margins_plot_writes_png_and_manifest(scenario_file: Path, tmp_path: Pat
     assert capsys.readouterr().out.startswith("# ")  # CSV on stdout, "wrote" on stderr
 
 
-@pytest.mark.parametrize("argv, fragment", [
-    (["margins", "no-such-file.toml"], "no such scenario file"),
-    (["margins", "{file}", "--class", "II", "--category", "C"], "II-C"),
-])
+@pytest.mark.parametrize(
+    "argv, fragment",
+    [
+        (["margins", "no-such-file.toml"], "no such scenario file"),
+        (["margins", "{file}", "--class", "II", "--category", "C"], "II-C"),
+    ],
+)
 def test_user_mistakes_exit_2_with_one_line(argv, fragment, scenario_file: Path, capsys) -> None:
     argv = [a.replace("{file}", str(scenario_file)) for a in argv]
     assert main(argv) == 2

@@ -11,8 +11,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as hst
 from hypothesis.extra import numpy as hnp
 from numpy.testing import assert_allclose, assert_array_equal
-
-from sim.metrics import (
+from rollrig.sim.metrics import (
     METRIC_INFO,
     MetricSpec,
     StepSegment,
@@ -23,7 +22,7 @@ from sim.metrics import (
     safety_metrics,
     step_metrics,
 )
-from sim.trace import Trace
+from rollrig.sim.trace import Trace
 
 DT = 1e-3
 T = np.arange(0.0, 20.0 + DT / 2, DT)  # 20001 samples
@@ -223,28 +222,48 @@ def _trace(bank, cmd, aileron, diverged_at):
     b = bank.shape[0]
     tick = slice(None, None, 10)  # controller at 1/10 of the base rate
     return Trace(
-        t=T, bank_cmd=cmd, bank=bank, roll_rate=np.gradient(bank, T, axis=1), aileron=aileron,
-        t_ctrl=T[tick], bank_meas=bank[:, tick], valid=np.ones(bank[:, tick].shape, bool),
-        age=np.zeros(bank[:, tick].shape), aileron_cmd=aileron[:, tick], states=None,
-        state_names=(), diverged_at=diverged_at, run_index=np.arange(b) + 100, seed=1,
+        t=T,
+        bank_cmd=cmd,
+        bank=bank,
+        roll_rate=np.gradient(bank, T, axis=1),
+        aileron=aileron,
+        t_ctrl=T[tick],
+        bank_meas=bank[:, tick],
+        valid=np.ones(bank[:, tick].shape, bool),
+        age=np.zeros(bank[:, tick].shape),
+        aileron_cmd=aileron[:, tick],
+        states=None,
+        state_names=(),
+        diverged_at=diverged_at,
+        run_index=np.arange(b) + 100,
+        seed=1,
     )
 
 
 def _two_step_case():
     phi = 0.5
     zetas = (0.3, 0.7, 0.5)
-    bank = np.array([
-        phi * second_order_step(T - 1.0, z) * (T >= 1.0)
-        - phi * second_order_step(T - 11.0, z) * (T >= 11.0)
-        for z in zetas
-    ])
+    bank = np.array(
+        [
+            phi * second_order_step(T - 1.0, z) * (T >= 1.0)
+            - phi * second_order_step(T - 11.0, z) * (T >= 11.0)
+            for z in zetas
+        ]
+    )
     cmd = np.where((T >= 1.0) & (T < 11.0), phi, 0.0)[None, :] + np.zeros((3, 1))
     ail = 0.1 * np.gradient(bank, T, axis=1)
     spec = MetricSpec(
-        steps=(StepSegment(1.0, 11.0, 0.0, phi), StepSegment(11.0, 20.0, phi, 0.0),
-               StepSegment(15.0, 20.0, 0.0, 0.0)),  # zero-size: skipped
-        settle_band_frac=0.05, settle_band_rad=None, hold_band_rad=np.deg2rad(2.0),
-        bank_limit_rad=np.deg2rad(32.0), aileron_limit_rad=0.3, aileron_rate_limit_rad_s=1.0,
+        steps=(
+            StepSegment(1.0, 11.0, 0.0, phi),
+            StepSegment(11.0, 20.0, phi, 0.0),
+            StepSegment(15.0, 20.0, 0.0, 0.0),
+        ),  # zero-size: skipped
+        settle_band_frac=0.05,
+        settle_band_rad=None,
+        hold_band_rad=np.deg2rad(2.0),
+        bank_limit_rad=np.deg2rad(32.0),
+        aileron_limit_rad=0.3,
+        aileron_rate_limit_rad_s=1.0,
     )
     return bank, cmd, ail, spec
 
@@ -272,8 +291,7 @@ def test_evaluate_worst_over_steps_and_divergence():
     assert np.isfinite(per[0]["settling_time_s"][2])  # step 1 ended before 15 s
     assert np.all(per[1]["settling_time_s"][2] == np.inf)
     # zeta = 0.3 overshoot, both steps alike: exp(-pi z/sqrt(1-z^2)) [textbook identity]
-    assert_allclose(res["overshoot_pct"][0], 100 * np.exp(-np.pi * 0.3 / np.sqrt(0.91)),
-                    rtol=1e-4)
+    assert_allclose(res["overshoot_pct"][0], 100 * np.exp(-np.pi * 0.3 / np.sqrt(0.91)), rtol=1e-4)
     for k in ("rms_error_rad", "time_outside_band_s", "aileron_rms_rad", "pct_time_at_limit"):
         assert np.all(np.isfinite(res[k][:2])) and res[k][2] == np.inf
     assert_array_equal(res["diverged"], [False, False, True])
@@ -306,7 +324,9 @@ def test_metric_spec_validation():
 @settings(max_examples=40, deadline=None)
 @given(
     y=hnp.arrays(np.float64, (3, 60), elements=hst.floats(-3, 3, allow_subnormal=False)),
-    y0=hst.floats(-1, 1), y1=hst.floats(-1, 1), band=hst.floats(0, 0.5),
+    y0=hst.floats(-1, 1),
+    y1=hst.floats(-1, 1),
+    band=hst.floats(0, 0.5),
 )
 def test_step_metrics_batch_consistent_and_nan_free(y, y0, y1, band):
     t = np.linspace(0.0, 5.9, 60)

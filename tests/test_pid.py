@@ -6,15 +6,21 @@ import math
 
 import numpy as np
 import pytest
-
-from controllers.base import Observation
-from controllers.pid import PIDConfig, PIDController
+from rollrig.controllers.base import Observation
+from rollrig.controllers.pid import PIDConfig, PIDController
 
 
 def obs(t, bank, age=0.0, cmd=0.0, dt=0.02, rate=None):
     one = lambda v: np.atleast_1d(np.asarray(v, float))  # noqa: E731
-    return Observation(t=t, dt=dt, bank=one(bank), valid=one(1.0) > 0, age=one(age),
-                       bank_cmd=one(cmd), rate=None if rate is None else one(rate))
+    return Observation(
+        t=t,
+        dt=dt,
+        bank=one(bank),
+        valid=one(1.0) > 0,
+        age=one(age),
+        bank_cmd=one(cmd),
+        rate=None if rate is None else one(rate),
+    )
 
 
 def test_proportional_only():

@@ -6,8 +6,7 @@ import control
 import numpy as np
 import pytest
 from numpy.testing import assert_allclose
-
-from sim.plant import (
+from rollrig.sim.plant import (
     DiscretePlant,
     LinearPlant,
     check_plant,
@@ -15,7 +14,7 @@ from sim.plant import (
     discretize,
     modes,
 )
-from sim.presets import PRESETS, roll_only
+from rollrig.sim.presets import PRESETS, roll_only
 
 
 def _step_zoh(dp: DiscretePlant, x0: np.ndarray, u: np.ndarray, d: np.ndarray) -> np.ndarray:

@@ -5,9 +5,8 @@ from __future__ import annotations
 import numpy as np
 import pytest
 from numpy.testing import assert_allclose
-
-from sim.plant import LinearPlant, discretize, modes
-from sim.presets import (
+from rollrig.sim.plant import LinearPlant, discretize, modes
+from rollrig.sim.presets import (
     PRESETS,
     SMALL_UAV_AIRFRAME,
     from_dimensional_derivatives,
@@ -185,9 +184,7 @@ def test_uav_modes_measured() -> None:
     # -11.826, Dutch roll -3.630 ± 8.830i, spiral -0.0409 at 25 m/s. A stable,
     # lightly coupled model is what Beard & McLain's ch. 6 design assumes.
     dutch, roll, spiral = _split(modes(small_uav(25.0)))
-    assert_allclose(
-        [roll, dutch.real, dutch.imag, spiral], [-11.8256, -3.6301, 8.8299, -0.040938], rtol=1e-4
-    )
+    assert_allclose([roll, dutch.real, dutch.imag, spiral], [-11.8256, -3.6301, 8.8299, -0.040938], rtol=1e-4)
 
 
 def test_roll_only_preset_uses_uav_coefficients() -> None:

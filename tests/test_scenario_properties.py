@@ -20,12 +20,11 @@ import string
 import tomllib
 
 import numpy as np
-from conftest import rich_docs, to_toml
+from helpers import rich_docs, to_toml
 from hypothesis import HealthCheck, event, given, settings
 from hypothesis import strategies as st
-
-from sim.errors import ScenarioError
-from sim.scenario import Scenario, parse_scenario
+from rollrig.sim.errors import ScenarioError
+from rollrig.sim.scenario import Scenario, parse_scenario
 
 BASES = rich_docs()
 
@@ -48,9 +47,28 @@ for _d in BASES:
     _collect_keys(_d)
 KNOWN_KEYS = sorted(_KEYS)
 CHOICE_WORDS = [
-    "pid", "custom", "gyro", "measurement", "hold", "step", "sequence", "light-single",
-    "small-uav", "roll-only", "matrices", "derivatives", "side", "roll", "light", "moderate",
-    "severe", "p", "phi", "beta", "r", "",
+    "pid",
+    "custom",
+    "gyro",
+    "measurement",
+    "hold",
+    "step",
+    "sequence",
+    "light-single",
+    "small-uav",
+    "roll-only",
+    "matrices",
+    "derivatives",
+    "side",
+    "roll",
+    "light",
+    "moderate",
+    "severe",
+    "p",
+    "phi",
+    "beta",
+    "r",
+    "",
 ]
 
 _text = st.text(
@@ -132,8 +150,11 @@ def mutants(draw, max_mutations: int = 3, plausible: bool = False) -> dict:
     values = plausible_values if plausible else toml_values
     doc = copy.deepcopy(draw(st.sampled_from(BASES)))
     for _ in range(draw(st.integers(1, max_mutations))):
-        ops = ["delete", "replace", "replace", "replace"] if plausible else [
-            "delete", "replace", "replace", "rename", "add"]
+        ops = (
+            ["delete", "replace", "replace", "replace"]
+            if plausible
+            else ["delete", "replace", "replace", "rename", "add"]
+        )
         op = draw(st.sampled_from(ops))
         if op == "add":
             table = draw(st.sampled_from(_tables(doc, [])))
@@ -191,7 +212,7 @@ def test_mutated_scenarios_load_or_raise_scenario_error(doc):
 @given(mutants())
 def test_mutated_files_through_cli_never_traceback(tmp_path_factory, doc):
     """The same mutants as TOML files through ``rollrig check``: exit 0 or 2, one line."""
-    from sim.cli.main import main
+    from rollrig.sim.cli.main import main
 
     path = tmp_path_factory.mktemp("mut") / "mutant.toml"
     path.write_text(to_toml(doc), encoding="utf-8")
@@ -212,7 +233,7 @@ def test_mutated_files_through_cli_never_traceback(tmp_path_factory, doc):
 @given(mutants(max_mutations=2, plausible=True), st.integers(0, 2**32 - 1))
 def test_loaded_mutants_run_without_nan(doc, seed):
     """Every scenario that loads runs 1 s without raising; metrics never hold NaN."""
-    from sim.runner import run_scenario
+    from rollrig.sim.runner import run_scenario
 
     sc = _load(doc)
     if sc is None:

@@ -16,12 +16,11 @@ import math
 import numpy as np
 import pytest
 from numpy.testing import assert_allclose
-
-from sensors.fit import LogProblem, fit_sensor, sensor_toml
-from sim.scenario import parse_scenario
-from sim.section import Section
-from sim.sensor_log import make_log, read_log, write_log
-from sim.sensor_section import parse_sensor
+from rollrig.sensors.fit import LogProblem, fit_sensor, sensor_toml
+from rollrig.sim.scenario import parse_scenario
+from rollrig.sim.section import Section
+from rollrig.sim.sensor_log import make_log, read_log, write_log
+from rollrig.sim.sensor_section import parse_sensor
 
 _BANKS = [0, 25, -20, 10, -25, 15, 0, -15, 25, -10, 20, -25, 5, 25, -20, 10, -5, 20, -25, 15]
 
@@ -40,22 +39,82 @@ def _doc(sensor: dict, duration: float, dt: float, seed: int = 5) -> dict:
 
 # name: (sensor section, duration s, base step s, expected effective latency s)
 CONFIGS = {
-    "independent-losses": ({"frame_rate_hz": 30.0, "latency_s": 0.05, "noise_deg": 0.3, "bias_deg": 0.8,
-                            "scale": 0.98, "dropout_prob": 0.05, "range_deg": 80.0}, 120.0, 0.01, 0.05),
-    "bursty-glare": ({"frame_rate_hz": 25.0, "latency_s": 0.12, "noise_deg": 0.5, "bias_deg": -1.5,
-                      "scale": 1.02, "range_deg": 80.0,
-                      "bursts": {"loss_rate": 0.15, "mean_burst_frames": 6.0}}, 400.0, 0.01, 0.12),
-    "classifier-best": ({"frame_rate_hz": 20.0, "latency_s": 0.08, "noise_deg": 0.8, "bias_deg": 0.5,
-                         "range_deg": 80.0, "dropout_prob": 0.08,
-                         "classifier": {"class_width_deg": 2.0, "sharpness": 4.0, "decode": "best"}},
-                        150.0, 0.01, 0.08),
-    "wander-outliers": ({"frame_rate_hz": 30.0, "latency_s": 0.06, "noise_deg": 0.2, "wander_deg": 0.3,
-                         "wander_time_s": 2.0, "bias_deg": 2.0, "scale": 1.04, "outlier_prob": 0.01,
-                         "outlier_deg": 20.0, "range_deg": 80.0}, 300.0, 0.01, 0.06),
-    "quantised-jitter-exposure": ({"frame_rate_hz": 20.0, "latency_s": 0.1, "jitter_s": 0.004,
-                                   "exposure_s": 0.02, "noise_deg": 0.4, "quantization_deg": 0.5,
-                                   "bias_deg": -0.7, "scale": 1.01, "dropout_prob": 0.1,
-                                   "range_deg": 80.0}, 120.0, 0.005, 0.11),
+    "independent-losses": (
+        {
+            "frame_rate_hz": 30.0,
+            "latency_s": 0.05,
+            "noise_deg": 0.3,
+            "bias_deg": 0.8,
+            "scale": 0.98,
+            "dropout_prob": 0.05,
+            "range_deg": 80.0,
+        },
+        120.0,
+        0.01,
+        0.05,
+    ),
+    "bursty-glare": (
+        {
+            "frame_rate_hz": 25.0,
+            "latency_s": 0.12,
+            "noise_deg": 0.5,
+            "bias_deg": -1.5,
+            "scale": 1.02,
+            "range_deg": 80.0,
+            "bursts": {"loss_rate": 0.15, "mean_burst_frames": 6.0},
+        },
+        400.0,
+        0.01,
+        0.12,
+    ),
+    "classifier-best": (
+        {
+            "frame_rate_hz": 20.0,
+            "latency_s": 0.08,
+            "noise_deg": 0.8,
+            "bias_deg": 0.5,
+            "range_deg": 80.0,
+            "dropout_prob": 0.08,
+            "classifier": {"class_width_deg": 2.0, "sharpness": 4.0, "decode": "best"},
+        },
+        150.0,
+        0.01,
+        0.08,
+    ),
+    "wander-outliers": (
+        {
+            "frame_rate_hz": 30.0,
+            "latency_s": 0.06,
+            "noise_deg": 0.2,
+            "wander_deg": 0.3,
+            "wander_time_s": 2.0,
+            "bias_deg": 2.0,
+            "scale": 1.04,
+            "outlier_prob": 0.01,
+            "outlier_deg": 20.0,
+            "range_deg": 80.0,
+        },
+        300.0,
+        0.01,
+        0.06,
+    ),
+    "quantised-jitter-exposure": (
+        {
+            "frame_rate_hz": 20.0,
+            "latency_s": 0.1,
+            "jitter_s": 0.004,
+            "exposure_s": 0.02,
+            "noise_deg": 0.4,
+            "quantization_deg": 0.5,
+            "bias_deg": -0.7,
+            "scale": 1.01,
+            "dropout_prob": 0.1,
+            "range_deg": 80.0,
+        },
+        120.0,
+        0.005,
+        0.11,
+    ),
 }
 
 
@@ -123,13 +182,23 @@ def test_log_file_round_trip(tmp_path, fits):
     assert np.all(np.isnan(back.reading[~ok])) and np.array_equal(back.valid, log.valid)
 
 
-@pytest.mark.parametrize("change, message", [
-    (lambda t, r, y, v: (t[:40], r[:40], y[:40], v[:40]), "too short"),
-    (lambda t, r, y, v: (t[::-1].copy(), r, y, v), "backwards"),
-    (lambda t, r, y, v: (t, r, y, np.zeros_like(v)), "invalid"),
-    (lambda t, r, y, v: (t, np.where(np.arange(t.size) < t.size // 2, r, np.nan),
-                         np.where(np.arange(t.size) >= t.size // 2, y, np.nan), v), "overlap"),
-])
+@pytest.mark.parametrize(
+    "change, message",
+    [
+        (lambda t, r, y, v: (t[:40], r[:40], y[:40], v[:40]), "too short"),
+        (lambda t, r, y, v: (t[::-1].copy(), r, y, v), "backwards"),
+        (lambda t, r, y, v: (t, r, y, np.zeros_like(v)), "invalid"),
+        (
+            lambda t, r, y, v: (
+                t,
+                np.where(np.arange(t.size) < t.size // 2, r, np.nan),
+                np.where(np.arange(t.size) >= t.size // 2, y, np.nan),
+                v,
+            ),
+            "overlap",
+        ),
+    ],
+)
 def test_refuses_unusable_logs(fits, change, message):
     log, _ = fits["independent-losses"]
     with pytest.raises(LogProblem, match=message):
@@ -140,7 +209,7 @@ def test_cli_fits_the_bundled_example(tmp_path, capsys):
     import json
     from pathlib import Path
 
-    from sim.cli.main import main
+    from rollrig.sim.cli.main import main
 
     log = Path(__file__).parent.parent / "scenarios" / "logs" / "crop-duster-camera.csv"
     out = tmp_path / "fit"
@@ -155,7 +224,7 @@ def test_cli_fits_the_bundled_example(tmp_path, capsys):
 
 
 def test_cli_refuses_bad_logs_with_one_line(tmp_path, capsys):
-    from sim.cli.main import main
+    from rollrig.sim.cli.main import main
 
     short = tmp_path / "short.csv"
     short.write_text("t_s,reference_deg,reading_deg\n" + "".join(f"{i * 0.1},0,0\n" for i in range(10)))

@@ -6,8 +6,7 @@ import numpy as np
 import pytest
 import scipy.stats as st
 from numpy.testing import assert_allclose
-
-from sim.stats import (
+from rollrig.sim.stats import (
     pass_fraction,
     percentile_with_inf,
     summarize,
@@ -65,9 +64,11 @@ def test_diverged_runs_excluded_and_counted():
     s = summarize(x, np.arange(40) * 2, larger_is_worse=True, diverged=div)
     ref = summarize(x[~div], (np.arange(40) * 2)[~div], larger_is_worse=True)
     assert s.n == 37 and s.n_diverged == 3
-    assert_allclose([s.mean, s.ci95_low, s.ci95_high, s.std, s.p5, s.p50, s.p95, s.worst],
-                    [ref.mean, ref.ci95_low, ref.ci95_high, ref.std, ref.p5, ref.p50,
-                     ref.p95, ref.worst], rtol=1e-14)
+    assert_allclose(
+        [s.mean, s.ci95_low, s.ci95_high, s.std, s.p5, s.p50, s.p95, s.worst],
+        [ref.mean, ref.ci95_low, ref.ci95_high, ref.std, ref.p5, ref.p50, ref.p95, ref.worst],
+        rtol=1e-14,
+    )
     assert s.worst_run == ref.worst_run and s.worst_run % 2 == 0
 
 
@@ -127,8 +128,7 @@ def test_t_interval_coverage_sanity():
 def test_wilson_matches_scipy_binomtest(n, conf):
     for k in sorted({0, 1, n // 3, n // 2, n - 1, n}):
         ref = st.binomtest(k, n).proportion_ci(confidence_level=conf, method="wilson")
-        assert_allclose(wilson_interval(k, n, conf), [ref.low, ref.high], rtol=1e-10,
-                        atol=1e-14)
+        assert_allclose(wilson_interval(k, n, conf), [ref.low, ref.high], rtol=1e-10, atol=1e-14)
 
 
 def test_wilson_hand_computed():

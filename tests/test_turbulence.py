@@ -15,10 +15,9 @@ import scipy.integrate
 import scipy.linalg
 import scipy.signal
 from numpy.testing import assert_allclose, assert_array_equal
-
-from sim.disturbance import DisturbanceSet, DisturbanceSource
-from sim.seeding import run_generators
-from sim.turbulence import (
+from rollrig.sim.disturbance import DisturbanceSet, DisturbanceSource
+from rollrig.sim.seeding import run_generators
+from rollrig.sim.turbulence import (
     FT_M,
     INTENSITY_W20_MPS,
     KT_MPS,
@@ -129,8 +128,12 @@ def sigma_p_closed_form(p: DrydenParams) -> float:
     σ_p² = σ_w² · 0.8 (π/(4b))^(1/3) / L_w^(2/3) · π² / (8 b)."""
     b = p.span_m
     return math.sqrt(
-        p.sigma_w_mps**2 * 0.8 * (math.pi / (4 * b)) ** (1 / 3) / p.length_w_m ** (2 / 3)
-        * math.pi**2 / (8 * b)
+        p.sigma_w_mps**2
+        * 0.8
+        * (math.pi / (4 * b)) ** (1 / 3)
+        / p.length_w_m ** (2 / 3)
+        * math.pi**2
+        / (8 * b)
     )
 
 
@@ -140,9 +143,7 @@ def test_stationary_sigma_matches_the_spectra(params):
     # One-sided-in-ω normalisation σ² = ∫₀^∞ Φ dω (MIL-F-8785C; REFERENCES.md), checked by
     # numerical quadrature of the analytic spectra (second method) ...
     quad = {
-        k: math.sqrt(
-            scipy.integrate.quad(lambda w, k=k: analytic_psd(params, w)[k], 0, np.inf, limit=400)[0]
-        )
+        k: math.sqrt(scipy.integrate.quad(lambda w, k=k: analytic_psd(params, w)[k], 0, np.inf, limit=400)[0])
         for k in ("v_gust", "p_gust", "r_gust")
     }
     assert_allclose(quad["v_gust"], params.sigma_v_mps, rtol=1e-6)
@@ -158,8 +159,12 @@ def test_roll_filter_is_unit_consistent():
     # σ_p (rad/s) must not depend on the unit system: feed the same case in feet (derived).
     si = PSD_PARAMS
     ft = DrydenParams(
-        si.sigma_v_mps / FT_M, si.sigma_w_mps / FT_M, si.length_v_m / FT_M,
-        si.length_w_m / FT_M, si.airspeed_mps / FT_M, si.span_m / FT_M,
+        si.sigma_v_mps / FT_M,
+        si.sigma_w_mps / FT_M,
+        si.length_v_m / FT_M,
+        si.length_w_m / FT_M,
+        si.airspeed_mps / FT_M,
+        si.span_m / FT_M,
     )
     s_si, s_ft = stationary_sigma(si), stationary_sigma(ft)
     assert_allclose(s_ft["p_gust"], s_si["p_gust"], rtol=1e-12)
@@ -176,9 +181,12 @@ def test_spatial_spectrum_form_agrees():
     p = PSD_PARAMS
     w = np.logspace(-2, 2, 9)
     om = w / p.airspeed_mps
-    phi_p = (p.sigma_w_mps**2 / p.length_w_m) * 0.8 * (math.pi * p.length_w_m / (4 * p.span_m)) ** (
-        1 / 3
-    ) / (1 + (4 * p.span_m * om / math.pi) ** 2)
+    phi_p = (
+        (p.sigma_w_mps**2 / p.length_w_m)
+        * 0.8
+        * (math.pi * p.length_w_m / (4 * p.span_m)) ** (1 / 3)
+        / (1 + (4 * p.span_m * om / math.pi) ** 2)
+    )
     lv = p.length_v_m
     phi_v = p.sigma_v_mps**2 * (lv / math.pi) * (1 + 3 * (lv * om) ** 2) / (1 + (lv * om) ** 2) ** 2
     got = analytic_psd(p, w)

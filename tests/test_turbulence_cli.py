@@ -5,10 +5,9 @@ from __future__ import annotations
 import json
 
 import pytest
-
-from sim.cli.main import main
-from sim.report.turbulence_check import check_turbulence
-from sim.turbulence import FT_M, INTENSITY_W20_MPS, dryden_params
+from rollrig.sim.cli.main import main
+from rollrig.sim.report.turbulence_check import check_turbulence
+from rollrig.sim.turbulence import FT_M, INTENSITY_W20_MPS, dryden_params
 
 
 def test_check_agrees_with_specification():
@@ -28,8 +27,25 @@ def test_check_agrees_with_specification():
 
 def test_cli_json_and_png(tmp_path, capsys):
     out = tmp_path / "turb"
-    code = main(["turbulence", "--airspeed-mps", "30", "--altitude-ft", "500", "--span-m", "3",
-                 "--duration-s", "200", "--records", "4", "--format", "json", "--out", str(out)])
+    code = main(
+        [
+            "turbulence",
+            "--airspeed-mps",
+            "30",
+            "--altitude-ft",
+            "500",
+            "--span-m",
+            "3",
+            "--duration-s",
+            "200",
+            "--records",
+            "4",
+            "--format",
+            "json",
+            "--out",
+            str(out),
+        ]
+    )
     assert code == 0
     data = json.loads(capsys.readouterr().out.split("\nwrote")[0])
     rows = {r["channel"]: r for r in data[0]["rows"]}
@@ -54,8 +70,18 @@ def test_cli_refuses_bad_requests(argv, capsys):
 
 
 def test_scenario_turbulence_is_used(capsys):
-    code = main(["turbulence", "scenarios/uav-ridge-turbulence.toml", "--duration-s", "60",
-                 "--records", "2", "--format", "csv"])
+    code = main(
+        [
+            "turbulence",
+            "scenarios/uav-ridge-turbulence.toml",
+            "--duration-s",
+            "60",
+            "--records",
+            "2",
+            "--format",
+            "csv",
+        ]
+    )
     assert code == 0
     text = capsys.readouterr().out
     assert "V = 24 m/s" in text  # the scenario's airspeed, not a default

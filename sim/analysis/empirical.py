@@ -61,11 +61,10 @@ import time
 from dataclasses import dataclass, replace
 
 import numpy as np
-
-from controllers.base import Controller
-from sim.controller_section import make_controller
-from sim.core import LoopSetup, Stepper
-from sim.scenario import Scenario, build_setup
+from rollrig.controllers.base import Controller
+from rollrig.sim.controller_section import make_controller
+from rollrig.sim.core import LoopSetup, Stepper
+from rollrig.sim.scenario import Scenario, build_setup
 
 __all__ = [
     "LOSS_RESOLUTION",
@@ -254,9 +253,17 @@ def quiet_scenario(sc: Scenario, base_step_s: float | None = None) -> Scenario:
     quiet_cam = _replace_known(
         cam,
         latency_s=float(latency) if latency.ndim == 0 else latency,
-        noise_rad=0.0, bias_rad=0.0, quantization_rad=0.0, dropout_prob=0.0, jitter_s=0.0,
-        latency_jitter_s=0.0, wander_rad=0.0, outlier_prob=0.0, outlier_rad=0.0,
-        classifier=None, bursts=None,
+        noise_rad=0.0,
+        bias_rad=0.0,
+        quantization_rad=0.0,
+        dropout_prob=0.0,
+        jitter_s=0.0,
+        latency_jitter_s=0.0,
+        wander_rad=0.0,
+        outlier_prob=0.0,
+        outlier_rad=0.0,
+        classifier=None,
+        bursts=None,
     )
     gyro = None if sc.gyro is None else _replace_known(sc.gyro, noise_rad_s=0.0, bias_rad_s=0.0)
     out = replace(sc, camera=quiet_cam, gyro=gyro, disturbances=())
@@ -308,7 +315,7 @@ def settle_verdict(
     tiny = 1e-9 * excitation_rad
 
     def ratio(x: np.ndarray, floor: float) -> np.ndarray:
-        a = np.max(np.abs(x[:, -2 * w:-w]), axis=1)
+        a = np.max(np.abs(x[:, -2 * w : -w]), axis=1)
         b = np.max(np.abs(x[:, -w:]), axis=1)
         with np.errstate(divide="ignore", invalid="ignore"):
             r = np.where(a > floor, b / np.where(a > floor, a, 1.0), 0.0)
@@ -346,8 +353,16 @@ def _next_candidates(lo: float, hi: float, n: int, geometric: bool) -> np.ndarra
 class _Bracket:
     """Narrowing search state for one margin."""
 
-    def __init__(self, name: str, first: np.ndarray, extend_to: float, geometric: bool,
-                 rounds: int, quantum: float = 0.0, cap: float = math.inf) -> None:
+    def __init__(
+        self,
+        name: str,
+        first: np.ndarray,
+        extend_to: float,
+        geometric: bool,
+        rounds: int,
+        quantum: float = 0.0,
+        cap: float = math.inf,
+    ) -> None:
         self.name, self.geometric, self.quantum, self.cap = name, geometric, quantum, cap
         self.refinements_left = rounds - 1
         self.lo = 1.0 if geometric else 0.0  # known to settle (checked by the nominal member)
@@ -379,8 +394,11 @@ class _Bracket:
                 self.current = np.array([])
                 return
             self.extended = True
-            new = (np.geomspace(self.lo, self.extend_to, n + 1)[1:] if self.geometric
-                   else np.linspace(self.lo, self.extend_to, n + 1)[1:])
+            new = (
+                np.geomspace(self.lo, self.extend_to, n + 1)[1:]
+                if self.geometric
+                else np.linspace(self.lo, self.extend_to, n + 1)[1:]
+            )
             self.current = self._snap(new)
             return
         if self.refinements_left <= 0:
@@ -447,13 +465,29 @@ def empirical_margins(
     base = replace(base, bank_cmd=np.zeros(n_steps + 1), x0=x0)
 
     n = st.candidates
-    gain = _Bracket("gain", np.geomspace(1.0, st.gain_max, n + 1)[1:], st.gain_max ** 2, True,
-                    st.rounds)
-    delay = _Bracket("delay", np.linspace(0.0, st.delay_max_s, n + 1)[1:], 4.0 * st.delay_max_s,
-                     False, st.rounds, quantum=dt)
+    gain = _Bracket("gain", np.geomspace(1.0, st.gain_max, n + 1)[1:], st.gain_max**2, True, st.rounds)
+    delay = _Bracket(
+        "delay",
+        np.linspace(0.0, st.delay_max_s, n + 1)[1:],
+        4.0 * st.delay_max_s,
+        False,
+        st.rounds,
+        quantum=dt,
+    )
     do_loss = st.loss and _supports_per_run_loss(q.camera)
-    loss = (_Bracket("loss", np.linspace(0.0, st.loss_max, n + 1)[1:], st.loss_max, False,
-                     st.rounds, quantum=LOSS_RESOLUTION, cap=st.loss_max) if do_loss else None)
+    loss = (
+        _Bracket(
+            "loss",
+            np.linspace(0.0, st.loss_max, n + 1)[1:],
+            st.loss_max,
+            False,
+            st.rounds,
+            quantum=LOSS_RESOLUTION,
+            cap=st.loss_max,
+        )
+        if do_loss
+        else None
+    )
     frac = q.criteria.settle_band_frac
     band_frac = float(frac) if frac is not None else 0.05
     brackets = [b for b in (gain, delay, loss) if b is not None]
@@ -471,7 +505,7 @@ def empirical_margins(
         for b in brackets:
             slots[b.name] = slice(offset, offset + b.current.size)
             target = {"gain": g, "delay": d, "loss": p}[b.name]
-            target[offset: offset + n] = _pad(b.current, n, target[0])
+            target[offset : offset + n] = _pad(b.current, n, target[0])
             offset += n
         setup = base
         if loss is not None:
@@ -497,15 +531,33 @@ def empirical_margins(
         g_est, d_est = gain.estimate(), delay.estimate()
         l_est = loss.estimate() if loss is not None else None
     return EmpiricalMargins(
-        gain=g_est, delay=d_est, loss=l_est, nominal_settles=nominal,
-        base_step_s=dt, window_s=w_steps * dt, duration_s=n_steps * dt, excitation_rad=phi0,
-        rounds=st.rounds, candidates=n, runs_simulated=runs_simulated,
-        elapsed_s=time.perf_counter() - t0, seed=st.seed,
+        gain=g_est,
+        delay=d_est,
+        loss=l_est,
+        nominal_settles=nominal,
+        base_step_s=dt,
+        window_s=w_steps * dt,
+        duration_s=n_steps * dt,
+        excitation_rad=phi0,
+        rounds=st.rounds,
+        candidates=n,
+        runs_simulated=runs_simulated,
+        elapsed_s=time.perf_counter() - t0,
+        seed=st.seed,
     )
 
 
-def _simulate(setup: LoopSetup, ctrl: Controller, gain: np.ndarray, delay: np.ndarray, seed: int,
-              w_steps: int, phi0: float, bank_limit: float, band: np.ndarray) -> np.ndarray:
+def _simulate(
+    setup: LoopSetup,
+    ctrl: Controller,
+    gain: np.ndarray,
+    delay: np.ndarray,
+    seed: int,
+    w_steps: int,
+    phi0: float,
+    bank_limit: float,
+    band: np.ndarray,
+) -> np.ndarray:
     stepper = Stepper(setup)
     batch = gain.size
     # One run index for every member: identical random streams (nested losses).
@@ -515,8 +567,7 @@ def _simulate(setup: LoopSetup, ctrl: Controller, gain: np.ndarray, delay: np.nd
         obs = stepper.advance(ctrl.step(obs))
     bank = stepper.rec_bank[: stepper.k + 1].T
     rate = stepper.rec_rate[: stepper.k + 1].T
-    settled, _ = settle_verdict(bank, rate, w_steps, phi0, bank_limit, np.isfinite(stepper.diverged_at),
-                                band)
+    settled, _ = settle_verdict(bank, rate, w_steps, phi0, bank_limit, np.isfinite(stepper.diverged_at), band)
     return settled
 
 
@@ -565,8 +616,7 @@ def bank_step_time(
     n = int(math.ceil(duration_s / dt))
     setup = build_setup(q.with_run(duration_s=n * dt))
     target = math.radians(bank_change_deg)
-    setup = replace(setup, bank_cmd=np.full(n + 1, overshoot_command * target),
-                    x0=np.zeros(q.plant.n_states))
+    setup = replace(setup, bank_cmd=np.full(n + 1, overshoot_command * target), x0=np.zeros(q.plant.n_states))
     stepper = Stepper(setup)
     obs = stepper.reset(0, [0])
     ctrl.reset(1)

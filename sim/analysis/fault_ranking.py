@@ -25,8 +25,7 @@ from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
-
-from sensors.camera import CameraConfig
+from rollrig.sensors.camera import CameraConfig
 
 from ..metrics import METRIC_INFO
 from ..runner import run_scenario

@@ -161,12 +161,15 @@ class LoopParts:
         for name in ("phi_index", "p_index"):
             idx = getattr(self, name)
             if int(idx) != idx or not 0 <= int(idx) < n:
-                raise ValueError(
-                    f"LoopParts.{name} must be an integer in [0, {n - 1}], got {idx!r}"
-                )
+                raise ValueError(f"LoopParts.{name} must be an integer in [0, {n - 1}], got {idx!r}")
             object.__setattr__(self, name, int(idx))
-        for name in ("actuator_tau_s", "camera_delay_s", "gyro_delay_s", "controller_dt_s",
-                     "derivative_delay_s"):
+        for name in (
+            "actuator_tau_s",
+            "camera_delay_s",
+            "gyro_delay_s",
+            "controller_dt_s",
+            "derivative_delay_s",
+        ):
             object.__setattr__(self, name, _nonneg(name, getattr(self, name)))
         for name in ("kp", "ki_per_s", "kd_s"):
             value = float(getattr(self, name))
@@ -227,8 +230,7 @@ def _actuator(parts: LoopParts) -> ct.TransferFunction:
 
 def _split_derivative(parts: LoopParts) -> bool:
     """Whether the camera-derivative term needs its own path (its own delay)."""
-    return (parts.derivative_source == "measurement" and parts.kd_s != 0.0
-            and parts.derivative_delay_s > 0.0)
+    return parts.derivative_source == "measurement" and parts.kd_s != 0.0 and parts.derivative_delay_s > 0.0
 
 
 def _camera_derivative(parts: LoopParts) -> ct.TransferFunction:
@@ -273,8 +275,12 @@ class _Evaluator:
         g_phi = ct.tf(_plant_output(parts, parts.phi_index))
         self.paths = [_Path(cam_c * act * g_phi, parts.camera_delay_s + hold)]
         if _split_derivative(parts):
-            self.paths.append(_Path(_camera_derivative(parts) * act * g_phi,
-                                    parts.camera_delay_s + parts.derivative_delay_s + hold))
+            self.paths.append(
+                _Path(
+                    _camera_derivative(parts) * act * g_phi,
+                    parts.camera_delay_s + parts.derivative_delay_s + hold,
+                )
+            )
         if parts.derivative_source == "gyro" and parts.kd_s != 0.0:
             g_p = ct.tf(_plant_output(parts, parts.p_index))
             self.paths.append(_Path(gyro_c * act * g_p, parts.gyro_delay_s + hold))
@@ -370,6 +376,7 @@ def rational_loop(parts: LoopParts, pade_order: int = 6) -> ct.StateSpace:
         Built as one chain (hold, servo, plant, sensors, controller), so the
         plant dynamics appear once even when two sensor paths are summed.
     """
+
     def delay(tau: float) -> ct.StateSpace:
         # Below 1 µs a delay is invisible at any frequency analysed, and its scaled
         # realisation (poles ~ n/τ) would swamp the eigenvalues.
@@ -558,9 +565,7 @@ def margins(parts: LoopParts, omega: Any = None, pade_order: int = 6) -> LoopMar
     loop = ev.loop1
     big_l = ev.loop(w)
     if abs(big_l[-1]) >= 1.0:
-        raise ValueError(
-            f"|L| is still >= 1 at the top of the grid ({w[-1]:.3g} rad/s); pass a wider omega"
-        )
+        raise ValueError(f"|L| is still >= 1 at the top of the grid ({w[-1]:.3g} rad/s); pass a wider omega")
 
     # Phase crossovers: L real and negative (Im L changes sign with Re L < 0).
     wpc_all = [x for x in _roots(lambda x: loop(x).imag, w, big_l.imag) if loop(x).real < 0.0]
@@ -624,10 +629,15 @@ def margins(parts: LoopParts, omega: Any = None, pade_order: int = 6) -> LoopMar
         bandwidth = float(w[0])
     else:
         i = int(below[0])
-        bandwidth = float(brentq(
-            lambda x: abs(ev.closed1(x)) - level, w[i - 1], w[i],
-            xtol=1e-14, rtol=1e-13,
-        ))
+        bandwidth = float(
+            brentq(
+                lambda x: abs(ev.closed1(x)) - level,
+                w[i - 1],
+                w[i],
+                xtol=1e-14,
+                rtol=1e-13,
+            )
+        )
 
     return LoopMargins(
         gain_margin_db=float(gain_margin_db),

@@ -47,9 +47,8 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-
-from sim.errors import ScenarioError
-from sim.scenario import Scenario
+from rollrig.sim.errors import ScenarioError
+from rollrig.sim.scenario import Scenario
 
 from .linear_loop import LoopParts
 
@@ -223,7 +222,7 @@ def loop_parts_from_scenario(sc: Scenario) -> LoopParts:
     if not has_linear_model(sc):
         raise ScenarioError(
             f"{sc.path}: [controller] kind = {sc.controller.kind!r} has no linear model; "
-            "allowed for analytic margins: \"pid\" (use the empirical margins)"
+            'allowed for analytic margins: "pid" (use the empirical margins)'
         )
     pid = sc.controller.pid
     scale = float(getattr(sc.camera, "scale", 1.0))
@@ -252,4 +251,3 @@ def loop_parts_from_scenario(sc: Scenario) -> LoopParts:
         derivative_source="gyro" if gyro_rate else "measurement",
         derivative_delay_s=extra,
     )
-

@@ -69,15 +69,23 @@ def plot_margins(parts: LoopParts, path: str | os.PathLike[str], omega: Any = No
         ph_c = np.interp(wc, w, phase)
         ax_mag.axvline(wc, color="C2", ls="--", lw=0.8)
         ax_ph.axvline(wc, color="C2", ls="--", lw=0.8)
-        ax_ph.annotate(f"PM {m.phase_margin_deg:.1f}° @ {wc:.3g} rad/s\n"
-                       f"delay margin {m.delay_margin_s * 1e3:.0f} ms",
-                       (wc, ph_c), textcoords="offset points", xytext=(10, -40), color="C2")
+        ax_ph.annotate(
+            f"PM {m.phase_margin_deg:.1f}° @ {wc:.3g} rad/s\ndelay margin {m.delay_margin_s * 1e3:.0f} ms",
+            (wc, ph_c),
+            textcoords="offset points",
+            xytext=(10, -40),
+            color="C2",
+        )
     if math.isfinite(m.phase_crossover_rad_s):
         wp = m.phase_crossover_rad_s
         ax_mag.axvline(wp, color="C3", ls="--", lw=0.8)
-        ax_mag.annotate(f"GM {m.gain_margin_db:.1f} dB @ {wp:.3g} rad/s",
-                        (wp, -m.gain_margin_db), textcoords="offset points",
-                        xytext=(8, -14), color="C3")
+        ax_mag.annotate(
+            f"GM {m.gain_margin_db:.1f} dB @ {wp:.3g} rad/s",
+            (wp, -m.gain_margin_db),
+            textcoords="offset points",
+            xytext=(8, -14),
+            color="C3",
+        )
     for ax in (ax_mag, ax_ph):
         ax.grid(True, which="both", lw=0.3)
 
@@ -103,9 +111,13 @@ def plot_margins(parts: LoopParts, path: str | os.PathLike[str], omega: Any = No
     if a < 2.0:
         lo, hi = -(2.0 + a) / (2.0 - a), -(2.0 - a) / (2.0 + a)
         centre, radius = 0.5 * (lo + hi), 0.5 * (hi - lo)
-        ax_nyq.plot(centre + radius * np.cos(th), radius * np.sin(th), color="C3", lw=0.8,
-                    label=f"disk α={a:.2f}: ±{m.disk_gain_margin_db:.1f} dB, "
-                          f"±{m.disk_phase_margin_deg:.1f}°")
+        ax_nyq.plot(
+            centre + radius * np.cos(th),
+            radius * np.sin(th),
+            color="C3",
+            lw=0.8,
+            label=f"disk α={a:.2f}: ±{m.disk_gain_margin_db:.1f} dB, ±{m.disk_phase_margin_deg:.1f}°",
+        )
     ax_nyq.set_xlim(-3.0, 1.0)
     ax_nyq.set_ylim(-2.0, 2.0)
     ax_nyq.set_aspect("equal")

@@ -26,10 +26,9 @@ from dataclasses import dataclass, replace
 from pathlib import Path
 
 import numpy as np
-
-from controllers.base import Controller
-from sim.report.table import Table, fmt_number
-from sim.scenario import Scenario
+from rollrig.controllers.base import Controller
+from rollrig.sim.report.table import Table, fmt_number
+from rollrig.sim.scenario import Scenario
 
 from .empirical import EmpiricalMargins, EmpiricalSettings, bank_step_time, empirical_margins
 from .handling import (
@@ -182,8 +181,11 @@ def margins_report(
         t = time.perf_counter()
         st = settings or EmpiricalSettings()
         if st.oscillation_rad_s is None and st.window_s is None and analytic is not None:
-            freqs = [w for w in (analytic.gain_crossover_rad_s, analytic.phase_crossover_rad_s)
-                     if math.isfinite(w) and w > 0]
+            freqs = [
+                w
+                for w in (analytic.gain_crossover_rad_s, analytic.phase_crossover_rad_s)
+                if math.isfinite(w) and w > 0
+            ]
             if freqs:
                 st = replace(st, oscillation_rad_s=min(freqs))
         emp = empirical_margins(sc, st, controller=controller, allow_code=allow_code)
@@ -205,10 +207,19 @@ def margins_report(
         timings["handling"] = time.perf_counter() - t
 
     return MarginsReport(
-        scenario=sc, aircraft_class=aircraft_class.strip().upper(), category=category.strip().upper(),
-        delay=camera_delay(sc), parts=parts, analytic=analytic, empirical=emp,
-        modes=modes, mode_ratings=ratings, mode_error=mode_error,
-        bank_change_deg=bank_change, time_to_bank_s=t_bank, roll_performance=level_roll,
+        scenario=sc,
+        aircraft_class=aircraft_class.strip().upper(),
+        category=category.strip().upper(),
+        delay=camera_delay(sc),
+        parts=parts,
+        analytic=analytic,
+        empirical=emp,
+        modes=modes,
+        mode_ratings=ratings,
+        mode_error=mode_error,
+        bank_change_deg=bank_change,
+        time_to_bank_s=t_bank,
+        roll_performance=level_roll,
         timings_s=timings,
     )
 
@@ -241,16 +252,33 @@ def _margin_table(rep: MarginsReport) -> Table:
     )
     t.records = []
 
-    def row(key: str, label: str, av: float | None, a_txt: str, ev: float | None, e_txt: str,
-            req: str = "", ok: bool | None = None, **extra: float | None) -> None:
+    def row(
+        key: str,
+        label: str,
+        av: float | None,
+        a_txt: str,
+        ev: float | None,
+        e_txt: str,
+        req: str = "",
+        ok: bool | None = None,
+        **extra: float | None,
+    ) -> None:
         t.add(label, a_txt, e_txt, req, _ok(ok), style=None if ok is not False else "red")
-        t.records.append({"figure": key, "analytic": av, "empirical": ev, "requirement": req,
-                          "pass": ok, **extra})
+        t.records.append(
+            {"figure": key, "analytic": av, "empirical": ev, "requirement": req, "pass": ok, **extra}
+        )
 
     # gain margin
     a_gm = a.upper_gain_margin_db if a is not None else None
-    a_txt = "—" if a is None else (f"{_f(a_gm)} @ {_f(a.phase_crossover_rad_s)} rad/s"
-                                   if math.isfinite(a_gm) else "∞ (no phase crossover)")
+    a_txt = (
+        "—"
+        if a is None
+        else (
+            f"{_f(a_gm)} @ {_f(a.phase_crossover_rad_s)} rad/s"
+            if math.isfinite(a_gm)
+            else "∞ (no phase crossover)"
+        )
+    )
     e_gm = e_tol = None
     e_txt = "—"
     if e is not None:
@@ -267,58 +295,127 @@ def _margin_table(rep: MarginsReport) -> Table:
         ok = a.gain_margin_ok
     elif e_gm is not None:
         ok = e.nominal_settles and e_gm >= MIL_F_9490D_GAIN_MARGIN_DB
-    row("gain_margin_db", "gain margin, increase (dB)", a_gm, a_txt, e_gm, e_txt,
-        f"≥ {MIL_F_9490D_GAIN_MARGIN_DB:g} dB", ok if gm_vals else None,
+    row(
+        "gain_margin_db",
+        "gain margin, increase (dB)",
+        a_gm,
+        a_txt,
+        e_gm,
+        e_txt,
+        f"≥ {MIL_F_9490D_GAIN_MARGIN_DB:g} dB",
+        ok if gm_vals else None,
         phase_crossover_rad_s=None if a is None else a.phase_crossover_rad_s,
-        empirical_tolerance_db=e_tol)
+        empirical_tolerance_db=e_tol,
+    )
     if a is not None:
         lo = a.lower_gain_margin_db
-        row("lower_gain_margin_db", "gain margin, reduction (dB)", lo,
-            "none (−∞)" if math.isinf(lo) else _f(lo), None, "—",
-            f"≤ −{MIL_F_9490D_GAIN_MARGIN_DB:g} dB", lo <= -MIL_F_9490D_GAIN_MARGIN_DB)
-        row("phase_margin_deg", "phase margin (deg)", a.phase_margin_deg,
-            f"{_f(a.phase_margin_deg)} @ {_f(a.gain_crossover_rad_s)} rad/s", None, "—",
-            f"≥ {MIL_F_9490D_PHASE_MARGIN_DEG:g}°", a.phase_margin_ok,
-            gain_crossover_rad_s=a.gain_crossover_rad_s)
+        row(
+            "lower_gain_margin_db",
+            "gain margin, reduction (dB)",
+            lo,
+            "none (−∞)" if math.isinf(lo) else _f(lo),
+            None,
+            "—",
+            f"≤ −{MIL_F_9490D_GAIN_MARGIN_DB:g} dB",
+            lo <= -MIL_F_9490D_GAIN_MARGIN_DB,
+        )
+        row(
+            "phase_margin_deg",
+            "phase margin (deg)",
+            a.phase_margin_deg,
+            f"{_f(a.phase_margin_deg)} @ {_f(a.gain_crossover_rad_s)} rad/s",
+            None,
+            "—",
+            f"≥ {MIL_F_9490D_PHASE_MARGIN_DEG:g}°",
+            a.phase_margin_ok,
+            gain_crossover_rad_s=a.gain_crossover_rad_s,
+        )
     # delay margin
     a_dm = None if a is None else a.delay_margin_s
     e_dm = None if e is None else e.delay.value
-    row("delay_margin_s", "delay margin (s)", a_dm, _f(a_dm), e_dm,
+    row(
+        "delay_margin_s",
+        "delay margin (s)",
+        a_dm,
+        _f(a_dm),
+        e_dm,
         "—" if e is None else _bracket(e.delay.value, e.delay.tolerance),
-        empirical_tolerance_s=None if e is None else e.delay.tolerance)
+        empirical_tolerance_s=None if e is None else e.delay.tolerance,
+    )
     cam = rep.delay.total_s
     if cam > 0:
-        row("delay_margin_camera_multiple", "delay margin / camera delay",
-            None if a_dm is None else a_dm / cam, "—" if a_dm is None else f"{_f(a_dm / cam)}×",
-            None if e_dm is None else e_dm / cam, "—" if e_dm is None else f"{_f(e_dm / cam)}×")
+        row(
+            "delay_margin_camera_multiple",
+            "delay margin / camera delay",
+            None if a_dm is None else a_dm / cam,
+            "—" if a_dm is None else f"{_f(a_dm / cam)}×",
+            None if e_dm is None else e_dm / cam,
+            "—" if e_dm is None else f"{_f(e_dm / cam)}×",
+        )
     if a is not None:
-        row("disk_margin", "disk margin (balanced)", a.disk_alpha,
+        row(
+            "disk_margin",
+            "disk margin (balanced)",
+            a.disk_alpha,
             f"α {_f(a.disk_alpha)}: ±{_f(a.disk_gain_margin_db)} dB, ±{_f(a.disk_phase_margin_deg)}°",
-            None, "—", disk_gain_margin_db=a.disk_gain_margin_db,
-            disk_phase_margin_deg=a.disk_phase_margin_deg)
-        row("sensitivity_peak_db", "sensitivity peak (dB)", a.sensitivity_peak_db,
-            _f(a.sensitivity_peak_db), None, "—")
-        row("bandwidth_rad_s", "closed-loop bandwidth (rad/s)", a.bandwidth_rad_s,
-            _f(a.bandwidth_rad_s), None, "—")
+            None,
+            "—",
+            disk_gain_margin_db=a.disk_gain_margin_db,
+            disk_phase_margin_deg=a.disk_phase_margin_deg,
+        )
+        row(
+            "sensitivity_peak_db",
+            "sensitivity peak (dB)",
+            a.sensitivity_peak_db,
+            _f(a.sensitivity_peak_db),
+            None,
+            "—",
+        )
+        row(
+            "bandwidth_rad_s",
+            "closed-loop bandwidth (rad/s)",
+            a.bandwidth_rad_s,
+            _f(a.bandwidth_rad_s),
+            None,
+            "—",
+        )
     if e is not None and e.loss is not None:
         lo = e.loss
-        row("loss_margin", "frame-loss margin (probability)", None, "—", lo.value,
-            _bracket(lo.value, lo.tolerance, 2), empirical_tolerance=lo.tolerance)
+        row(
+            "loss_margin",
+            "frame-loss margin (probability)",
+            None,
+            "—",
+            lo.value,
+            _bracket(lo.value, lo.tolerance, 2),
+            empirical_tolerance=lo.tolerance,
+        )
     stable_a = None if a is None else a.closed_loop_stable
     stable_e = None if e is None else e.nominal_settles
-    row("closed_loop_stable", "closed loop stable", None,
+    row(
+        "closed_loop_stable",
+        "closed loop stable",
+        None,
         "—" if a is None else ("yes" if stable_a else "NO") + f" (Padé {a.pade_order})",
-        None, "—" if e is None else ("settles" if stable_e else "does NOT settle"),
-        "stable", None if stable_a is None and stable_e is None
+        None,
+        "—" if e is None else ("settles" if stable_e else "does NOT settle"),
+        "stable",
+        None
+        if stable_a is None and stable_e is None
         else bool((stable_a is not False) and (stable_e is not False)),
-        analytic_stable=stable_a, empirical_settles=stable_e)
+        analytic_stable=stable_a,
+        empirical_settles=stable_e,
+    )
 
     if a is not None:
         t.notes.append(
             f"Analytic: exact delays e^(-jωτ) on the frequency response; Padé order {a.pade_order} "
             "only for the closed-loop stability flag. Plant: "
-            + ("roll-only model φ/δa" if "beta" not in sc.plant.state_names
-               else "full lateral model, aileron input, rudder fixed (rudder loop open)")
+            + (
+                "roll-only model φ/δa"
+                if "beta" not in sc.plant.state_names
+                else "full lateral model, aileron input, rudder fixed (rudder loop open)"
+            )
             + f" ({sc.plant.name}); servo lag; servo limits left out."
         )
     else:
@@ -329,8 +426,12 @@ def _margin_table(rep: MarginsReport) -> Table:
             f"bank, command 0; settles = no divergence, never past the bank limit, last {e.window_s:.3g} s "
             "window's peak |bank| below the start and below the window before (bank and roll rate)."
         )
-        loss_txt = (f"; frame losses on one random stream (seed {e.seed}), loss margin also needs "
-                    "|bank| within the settling band at the end" if e.loss is not None else "")
+        loss_txt = (
+            f"; frame losses on one random stream (seed {e.seed}), loss margin also needs "
+            "|bank| within the settling band at the end"
+            if e.loss is not None
+            else ""
+        )
         t.notes.append(
             f"Empirical search: {e.rounds} rounds × {e.candidates} candidates per margin in one batch, "
             f"{e.runs_simulated} runs of {e.duration_s:.3g} s at base step {e.base_step_s * 1e3:.3g} ms "
@@ -411,17 +512,23 @@ def _handling_table(rep: MarginsReport) -> Table:
     )
     t.records = []
 
-    def row(key: str, label: str, value: float | None, text: str, source: str,
-            level: Level | None) -> None:
+    def row(key: str, label: str, value: float | None, text: str, source: str, level: Level | None) -> None:
         style = None if level is None or level == Level.LEVEL_1 else "yellow"
         t.add(label, text, source, _level(level), style=style)
-        t.records.append({"figure": key, "value": value, "source": source,
-                          "level": None if level is None else int(level)})
+        t.records.append(
+            {"figure": key, "value": value, "source": source, "level": None if level is None else int(level)}
+        )
 
     m, r = rep.modes, rep.mode_ratings
     if m is not None and r is not None:
-        row("roll_tau_s", "roll-mode time constant (s)", m.roll_tau_s, _f(m.roll_tau_s),
-            "Table VII", r.roll_mode)
+        row(
+            "roll_tau_s",
+            "roll-mode time constant (s)",
+            m.roll_tau_s,
+            _f(m.roll_tau_s),
+            "Table VII",
+            r.roll_mode,
+        )
         if m.spiral_lambda is not None:
             if m.spiral_lambda > 0:
                 val = m.spiral_time_to_double_s
@@ -431,15 +538,26 @@ def _handling_table(rep: MarginsReport) -> Table:
                 text = f"stable, halves in {_f(val)} s"
             row("spiral_time_s", "spiral mode", val, text, "Table VIII (1980)", r.spiral)
         if m.dutch_zeta is not None and m.dutch_wn is not None:
-            row("dutch_roll", "Dutch roll ζ, ωn (rad/s), ζωn", m.dutch_zeta,
+            row(
+                "dutch_roll",
+                "Dutch roll ζ, ωn (rad/s), ζωn",
+                m.dutch_zeta,
                 f"{_f(m.dutch_zeta)}, {_f(m.dutch_wn)}, {_f(m.dutch_zeta * m.dutch_wn)}",
-                "Table VI", r.dutch_roll)
+                "Table VI",
+                r.dutch_roll,
+            )
     else:
         t.notes.append(f"Airframe modes not rated: {rep.mode_error or 'not computed'}")
     if rep.time_to_bank_s is not None:
         tb = rep.time_to_bank_s
-        row("time_to_bank_s", f"closed loop: time to bank {rep.bank_change_deg:g}° (s)", tb,
-            "not reached" if math.isinf(tb) else _f(tb), "Table IXa", rep.roll_performance)
+        row(
+            "time_to_bank_s",
+            f"closed loop: time to bank {rep.bank_change_deg:g}° (s)",
+            tb,
+            "not reached" if math.isinf(tb) else _f(tb),
+            "Table IXa",
+            rep.roll_performance,
+        )
         t.notes.append(
             f"Roll performance: noise-free copy, from wings level, step command to "
             f"{1.05 * rep.bank_change_deg:g}° (1.05 × the angle) at t = 0; time until the bank first "

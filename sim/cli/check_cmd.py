@@ -9,14 +9,17 @@ __all__ = ["add_parser", "run"]
 
 
 def add_parser(sub) -> None:
-    p = sub.add_parser("check", help="validate scenario files without running them",
-                       description="Validate scenario files; exit 2 on the first mistake.")
+    p = sub.add_parser(
+        "check",
+        help="validate scenario files without running them",
+        description="Validate scenario files; exit 2 on the first mistake.",
+    )
     p.add_argument("scenarios", metavar="FILE", nargs="+", help="scenario files (TOML)")
     p.set_defaults(func=run)
 
 
 def run(args: argparse.Namespace) -> int:
-    from sim.scenario import load_scenario
+    from rollrig.sim.scenario import load_scenario
 
     for path in args.scenarios:
         sc = load_scenario(path)

@@ -5,8 +5,8 @@ from __future__ import annotations
 import sys
 from pathlib import Path
 
-from sim.errors import UserInputError
-from sim.scenario import Scenario
+from rollrig.sim.errors import UserInputError
+from rollrig.sim.scenario import Scenario
 
 __all__ = ["apply_run_overrides", "MAX_RUNS", "print_tables", "status_stream", "say_written"]
 
@@ -31,7 +31,7 @@ def apply_run_overrides(
 
 def print_tables(tables: list, fmt: str) -> None:
     """Print report tables to standard output in the chosen format."""
-    from sim.report.table import render
+    from rollrig.sim.report.table import render
 
     text = render(tables, fmt)
     if text is not None:

@@ -5,8 +5,8 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-from sim.cli.common import apply_run_overrides, print_tables, say_written
-from sim.errors import UserInputError
+from rollrig.sim.cli.common import apply_run_overrides, print_tables, say_written
+from rollrig.sim.errors import UserInputError
 
 __all__ = ["add_parser", "run", "ranking_table"]
 
@@ -35,9 +35,9 @@ def add_parser(sub) -> None:
 
 
 def ranking_table(r):
-    from sim.metrics import METRIC_INFO
-    from sim.report import CAUTION
-    from sim.report.table import Table, fmt_number
+    from rollrig.sim.metrics import METRIC_INFO
+    from rollrig.sim.report import CAUTION
+    from rollrig.sim.report.table import Table, fmt_number
 
     info = METRIC_INFO[r.metric]
     unit = f" ({info.unit})" if info.unit else ""
@@ -85,17 +85,17 @@ def ranking_table(r):
 
 
 def run(args: argparse.Namespace) -> int:
-    from sim.analysis.fault_ranking import active_faults, rank_faults
-    from sim.metrics import METRIC_INFO
-    from sim.report.table import render
-    from sim.scenario import load_scenario
+    from rollrig.sim.analysis.fault_ranking import active_faults, rank_faults
+    from rollrig.sim.metrics import METRIC_INFO
+    from rollrig.sim.report.table import render
+    from rollrig.sim.scenario import load_scenario
 
     values = sorted(k for k, v in METRIC_INFO.items() if v.kind == "value")
     if args.metric is not None and args.metric not in values:
         raise UserInputError(f"--metric {args.metric}: allowed: {', '.join(values)}")
     sc = load_scenario(args.scenario)
     if args.metric is None:
-        from sim.runner import metric_spec
+        from rollrig.sim.runner import metric_spec
 
         has_step = any(abs(seg.size_rad) > 1e-12 for seg in metric_spec(sc).steps)
         args.metric = "itae" if has_step else "rms_error_rad"
@@ -103,7 +103,7 @@ def run(args: argparse.Namespace) -> int:
     if not active_faults(sc):
         raise UserInputError(f"{args.scenario}: [sensor] has no faults to rank (an ideal camera)")
     if args.out is not None:
-        from sim.report.outdir import check_out_dir
+        from rollrig.sim.report.outdir import check_out_dir
 
         check_out_dir(args.out, args.force)
     try:
@@ -116,7 +116,7 @@ def run(args: argparse.Namespace) -> int:
     table = ranking_table(ranking)
     print_tables([table], args.format)
     if args.out is not None:
-        from sim.report.outdir import manifest, output_folder, write_json
+        from rollrig.sim.report.outdir import manifest, output_folder, write_json
 
         with output_folder(args.out, force=args.force) as tmp:
             (tmp / "faults.md").write_text(render([table], "md"))

@@ -7,7 +7,7 @@ import hashlib
 import math
 from pathlib import Path
 
-from sim.cli.common import print_tables, say_written
+from rollrig.sim.cli.common import print_tables, say_written
 
 __all__ = ["add_parser", "run", "fit_tables", "plot_fit"]
 
@@ -29,29 +29,42 @@ _ROWS = (  # key, label, shown in degrees
 
 
 def add_parser(sub) -> None:
-    p = sub.add_parser("fit-sensor", help="fit the camera model to a recorded sensor log",
-                       description="Estimate latency, frame timing, bias, scale, quantisation, noise, "
-                                   "wander, outliers and losses from a CSV log; write a [sensor] section.")
+    p = sub.add_parser(
+        "fit-sensor",
+        help="fit the camera model to a recorded sensor log",
+        description="Estimate latency, frame timing, bias, scale, quantisation, noise, "
+        "wander, outliers and losses from a CSV log; write a [sensor] section.",
+    )
     p.add_argument("log", metavar="LOG.csv", help="CSV log with a header row")
     p.add_argument("--time-col", default="t_s", help="time column, seconds (default t_s)")
-    p.add_argument("--reference-col", default="reference_deg",
-                   help="trusted bank, degrees (default reference_deg)")
-    p.add_argument("--reading-col", default="reading_deg",
-                   help="camera reading, degrees (default reading_deg)")
-    p.add_argument("--valid-col", default=None,
-                   help="validity column, 1/0 (default: 'valid' if present, else every reading is valid)")
+    p.add_argument(
+        "--reference-col", default="reference_deg", help="trusted bank, degrees (default reference_deg)"
+    )
+    p.add_argument(
+        "--reading-col", default="reading_deg", help="camera reading, degrees (default reading_deg)"
+    )
+    p.add_argument(
+        "--valid-col",
+        default=None,
+        help="validity column, 1/0 (default: 'valid' if present, else every reading is valid)",
+    )
     p.add_argument("--max-latency", type=float, default=2.0, metavar="S", help="longest latency searched, s")
-    p.add_argument("--out", type=Path, metavar="DIR",
-                   help="output folder (default rollrig-runs/fit-<log>-<time>)")
+    p.add_argument(
+        "--out", type=Path, metavar="DIR", help="output folder (default rollrig-runs/fit-<log>-<time>)"
+    )
     p.add_argument("--force", action="store_true", help="replace an existing output folder")
     p.add_argument("--no-files", action="store_true", help="print the table only, write no folder")
-    p.add_argument("--format", choices=("table", "csv", "json", "md"), default="table",
-                   help="how to print the estimates (default: table)")
+    p.add_argument(
+        "--format",
+        choices=("table", "csv", "json", "md"),
+        default="table",
+        help="how to print the estimates (default: table)",
+    )
     p.set_defaults(func=run)
 
 
 def fit_tables(fit, source: str):
-    from sim.report.table import Table, fmt_number
+    from rollrig.sim.report.table import Table, fmt_number
 
     t = Table(title=f"Sensor fit: {source}", columns=["quantity", "estimate", "± 1 SE", "unit", "how"])
     recs = []
@@ -61,17 +74,30 @@ def fit_tables(fit, source: str):
         if in_deg:
             v, se, unit = math.degrees(v), math.degrees(se), "deg"
         t.add(label, fmt_number(v, 4), fmt_number(se, 2), unit, e.note)
-        recs.append({"quantity": key.replace("_rad", "_deg") if in_deg else key, "estimate": v,
-                     "se": se, "unit": unit, "how": e.note})
+        recs.append(
+            {
+                "quantity": key.replace("_rad", "_deg") if in_deg else key,
+                "estimate": v,
+                "se": se,
+                "unit": unit,
+                "how": e.note,
+            }
+        )
     t.records = recs
-    t.notes = [f"{fit.n_rows} rows, {fit.n_frames} frames; SE = one standard error (asymptotic formulas)",
-               "losses " + ("come in bursts: sensor.bursts table written" if fit.bursty
-                           else "look independent: dropout_prob written")]
+    t.notes = [
+        f"{fit.n_rows} rows, {fit.n_frames} frames; SE = one standard error (asymptotic formulas)",
+        "losses "
+        + (
+            "come in bursts: sensor.bursts table written"
+            if fit.bursty
+            else "look independent: dropout_prob written"
+        ),
+    ]
     return [t]
 
 
 def plot_fit(fit, path: Path, title: str) -> None:
-    from sim.report.plots import pyplot
+    from rollrig.sim.report.plots import pyplot
 
     plt = pyplot()
     fig, (a, b) = plt.subplots(2, 1, figsize=(10, 6), sharex=True)
@@ -92,17 +118,22 @@ def plot_fit(fit, path: Path, title: str) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    from sensors.fit import LogProblem, fit_sensor, sensor_toml
-    from sim.errors import LogFileError, UserInputError
-    from sim.report.outdir import check_out_dir, default_out_dir, manifest, output_folder, write_json
-    from sim.report.table import render
-    from sim.sensor_log import read_log
+    from rollrig.sensors.fit import LogProblem, fit_sensor, sensor_toml
+    from rollrig.sim.errors import LogFileError, UserInputError
+    from rollrig.sim.report.outdir import check_out_dir, default_out_dir, manifest, output_folder, write_json
+    from rollrig.sim.report.table import render
+    from rollrig.sim.sensor_log import read_log
 
     if not (0.0 < args.max_latency <= 10.0):
         raise UserInputError(f"--max-latency {args.max_latency}: allowed: 0 < S ≤ 10")
-    log = read_log(args.log, time_col=args.time_col, reference_col=args.reference_col,
-                   reading_col=args.reading_col, valid_col=args.valid_col or "valid",
-                   valid_required=args.valid_col is not None)
+    log = read_log(
+        args.log,
+        time_col=args.time_col,
+        reference_col=args.reference_col,
+        reading_col=args.reading_col,
+        valid_col=args.valid_col or "valid",
+        valid_required=args.valid_col is not None,
+    )
     out_dir = None
     if not args.no_files:
         out_dir = args.out or default_out_dir("fit-" + Path(args.log).stem)
@@ -123,8 +154,15 @@ def run(args: argparse.Namespace) -> int:
             (tmp / "estimates.md").write_text(render(tables, "md"))
             (tmp / "estimates.json").write_text(render(tables, "json"))
             plot_fit(fit, tmp / "fit.png", f"Sensor fit: {Path(args.log).name}")
-            write_json(tmp / "manifest.json", manifest(
-                scenario_path=str(args.log), scenario_sha256=hashlib.sha256(raw).hexdigest(),
-                seed=None, runs=[], extra={"command": "fit-sensor", "input": "sensor log"}))
+            write_json(
+                tmp / "manifest.json",
+                manifest(
+                    scenario_path=str(args.log),
+                    scenario_sha256=hashlib.sha256(raw).hexdigest(),
+                    seed=None,
+                    runs=[],
+                    extra={"command": "fit-sensor", "input": "sensor log"},
+                ),
+            )
         say_written(out_dir, args.format)
     return 0

@@ -10,8 +10,8 @@ import argparse
 import importlib
 import sys
 
-from sim import __version__
-from sim.errors import UserInputError
+from rollrig.sim import __version__
+from rollrig.sim.errors import UserInputError
 
 __all__ = ["main", "COMMANDS"]
 
@@ -42,7 +42,7 @@ def build_parser() -> argparse.ArgumentParser:
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
     sub.required = True
     for mod in COMMANDS.values():
-        importlib.import_module(f"sim.cli.{mod}").add_parser(sub)
+        importlib.import_module(f"rollrig.sim.cli.{mod}").add_parser(sub)
     return parser
 
 

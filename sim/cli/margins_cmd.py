@@ -11,8 +11,8 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-from sim.cli.common import print_tables, say_written, status_stream
-from sim.errors import UserInputError
+from rollrig.sim.cli.common import print_tables, say_written, status_stream
+from rollrig.sim.errors import UserInputError
 
 __all__ = ["add_parser", "run"]
 
@@ -22,7 +22,8 @@ CATEGORIES = ("A", "B", "C")
 
 def add_parser(sub) -> None:
     p = sub.add_parser(
-        "margins", help="stability margins (analytic and empirical) and handling qualities",
+        "margins",
+        help="stability margins (analytic and empirical) and handling qualities",
         description=(
             "Gain, phase, delay and disk margins of the loop broken at the aileron command "
             "(analytic, PID only), empirical gain/delay/frame-loss margins by simulation "
@@ -30,28 +31,51 @@ def add_parser(sub) -> None:
         ),
     )
     p.add_argument("scenario", metavar="FILE", help="scenario file (TOML)")
-    p.add_argument("--class", dest="aircraft_class", type=str.upper, choices=CLASSES, default="I",
-                   help="MIL-F-8785C aircraft class (default I: small light airplanes)")
-    p.add_argument("--category", type=str.upper, choices=CATEGORIES, default="B",
-                   help="flight-phase category (default B: cruise, gradual manoeuvres)")
-    p.add_argument("--format", choices=("table", "csv", "json", "md"), default="table",
-                   help="how to print the tables (default: table)")
-    p.add_argument("--plot", action="store_true",
-                   help="write Bode/Nichols/Nyquist plots (PID) into an output folder")
-    p.add_argument("--out", type=Path, metavar="DIR",
-                   help="output folder (default with --plot: rollrig-runs/<name>-margins-<time>)")
+    p.add_argument(
+        "--class",
+        dest="aircraft_class",
+        type=str.upper,
+        choices=CLASSES,
+        default="I",
+        help="MIL-F-8785C aircraft class (default I: small light airplanes)",
+    )
+    p.add_argument(
+        "--category",
+        type=str.upper,
+        choices=CATEGORIES,
+        default="B",
+        help="flight-phase category (default B: cruise, gradual manoeuvres)",
+    )
+    p.add_argument(
+        "--format",
+        choices=("table", "csv", "json", "md"),
+        default="table",
+        help="how to print the tables (default: table)",
+    )
+    p.add_argument(
+        "--plot", action="store_true", help="write Bode/Nichols/Nyquist plots (PID) into an output folder"
+    )
+    p.add_argument(
+        "--out",
+        type=Path,
+        metavar="DIR",
+        help="output folder (default with --plot: rollrig-runs/<name>-margins-<time>)",
+    )
     p.add_argument("--force", action="store_true", help="replace an existing output folder")
     p.add_argument("--no-empirical", action="store_true", help="skip the simulated margins")
     p.add_argument("--seed", type=int, default=0, help="seed of the frame-loss draws (default 0)")
-    p.add_argument("--allow-code", action="store_true",
-                   help="allow the scenario to load a user controller class (runs your code)")
+    p.add_argument(
+        "--allow-code",
+        action="store_true",
+        help="allow the scenario to load a user controller class (runs your code)",
+    )
     p.set_defaults(func=run)
 
 
 def run(args: argparse.Namespace) -> int:
-    from sim.report.outdir import check_out_dir, default_out_dir, manifest, output_folder, write_json
-    from sim.report.table import render
-    from sim.scenario import load_scenario
+    from rollrig.sim.report.outdir import check_out_dir, default_out_dir, manifest, output_folder, write_json
+    from rollrig.sim.report.table import render
+    from rollrig.sim.scenario import load_scenario
 
     sc = load_scenario(args.scenario)
     if args.seed < 0:
@@ -61,13 +85,16 @@ def run(args: argparse.Namespace) -> int:
         out_dir = args.out or default_out_dir(f"{Path(sc.path).stem}-margins")
         check_out_dir(out_dir, args.force)
 
-    from sim.analysis.empirical import EmpiricalSettings
-    from sim.analysis.margins_report import margins_report, margins_tables, write_margin_plots
+    from rollrig.sim.analysis.empirical import EmpiricalSettings
+    from rollrig.sim.analysis.margins_report import margins_report, margins_tables, write_margin_plots
 
     try:
         rep = margins_report(
-            sc, aircraft_class=args.aircraft_class, category=args.category,
-            empirical=not args.no_empirical, settings=EmpiricalSettings(seed=args.seed),
+            sc,
+            aircraft_class=args.aircraft_class,
+            category=args.category,
+            empirical=not args.no_empirical,
+            settings=EmpiricalSettings(seed=args.seed),
             allow_code=args.allow_code,
         )
     except UserInputError:
@@ -79,17 +106,31 @@ def run(args: argparse.Namespace) -> int:
 
     if out_dir is not None:
         with output_folder(out_dir, force=args.force) as tmp:
-            write_json(tmp / "manifest.json", manifest(
-                scenario_path=sc.path, scenario_sha256=sc.sha256, seed=args.seed, runs=[0],
-                extra={"title": sc.title, "command": "margins", "class": rep.aircraft_class,
-                       "category": rep.category},
-            ))
-            write_json(tmp / "margins.json", [{"title": t.title, "rows": t.records, "notes": t.notes}
-                                              for t in tables])
+            write_json(
+                tmp / "manifest.json",
+                manifest(
+                    scenario_path=sc.path,
+                    scenario_sha256=sc.sha256,
+                    seed=args.seed,
+                    runs=[0],
+                    extra={
+                        "title": sc.title,
+                        "command": "margins",
+                        "class": rep.aircraft_class,
+                        "category": rep.category,
+                    },
+                ),
+            )
+            write_json(
+                tmp / "margins.json",
+                [{"title": t.title, "rows": t.records, "notes": t.notes} for t in tables],
+            )
             (tmp / "margins.md").write_text(render(tables, "md"))
             written = write_margin_plots(rep, tmp) if args.plot else []
         if args.plot and not written:
-            print("no linear model for this controller: no Bode/Nichols/Nyquist plot",
-                  file=status_stream(args.format))
+            print(
+                "no linear model for this controller: no Bode/Nichols/Nyquist plot",
+                file=status_stream(args.format),
+            )
         say_written(out_dir, args.format)
     return 0

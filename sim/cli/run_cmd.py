@@ -6,9 +6,8 @@ import argparse
 from pathlib import Path
 
 import numpy as np
-
-from sim.cli.common import apply_run_overrides, print_tables, say_written
-from sim.errors import UserInputError
+from rollrig.sim.cli.common import apply_run_overrides, print_tables, say_written
+from rollrig.sim.errors import UserInputError
 
 __all__ = ["add_parser", "run", "HEADLINE_METRICS"]
 
@@ -59,10 +58,10 @@ def add_parser(sub) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    from sim.report.outdir import check_out_dir, default_out_dir, output_folder
-    from sim.report.table import render
-    from sim.runner import run_scenario
-    from sim.scenario import load_scenario
+    from rollrig.sim.report.outdir import check_out_dir, default_out_dir, output_folder
+    from rollrig.sim.report.table import render
+    from rollrig.sim.runner import run_scenario
+    from rollrig.sim.scenario import load_scenario
 
     sc = apply_run_overrides(load_scenario(args.scenario), args.runs, args.seed)
     if args.replay is not None:
@@ -81,17 +80,17 @@ def run(args: argparse.Namespace) -> int:
 
     outcome = run_scenario(sc, allow_code=args.allow_code, run_indices=runs)
 
-    from sim.report.run_tables import run_tables
+    from rollrig.sim.report.run_tables import run_tables
 
     tables = run_tables(outcome)
     if args.margins:
-        from sim.analysis.margins_report import run_margins_table
+        from rollrig.sim.analysis.margins_report import run_margins_table
 
         tables.append(run_margins_table(sc, allow_code=args.allow_code))
     print_tables(tables, args.format)
 
     if out_dir is not None:
-        from sim.report.run_files import write_run_files
+        from rollrig.sim.report.run_files import write_run_files
 
         with output_folder(out_dir, force=args.force) as tmp:
             write_run_files(tmp, outcome, run_indices=runs, command_line=getattr(args, "command_line", None))
@@ -111,8 +110,8 @@ def worst_run(outcome) -> int:
 
 
 def _plots(folder: Path, outcome) -> None:
-    from sim.metrics import METRIC_INFO
-    from sim.report.plots import plot_aileron, plot_bank, plot_envelope, plot_histograms
+    from rollrig.sim.metrics import METRIC_INFO
+    from rollrig.sim.report.plots import plot_aileron, plot_bank, plot_envelope, plot_histograms
 
     sc, tr = outcome.scenario, outcome.trace
     worst = worst_run(outcome)

@@ -5,8 +5,8 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-from sim.cli.common import print_tables, say_written
-from sim.errors import UserInputError
+from rollrig.sim.cli.common import print_tables, say_written
+from rollrig.sim.errors import UserInputError
 
 __all__ = ["add_parser", "run"]
 
@@ -35,10 +35,10 @@ def add_parser(sub) -> None:
 
 
 def _params(args):
-    from sim.turbulence import FT_M, INTENSITY_W20_MPS, DrydenTurbulence, dryden_params
+    from rollrig.sim.turbulence import FT_M, INTENSITY_W20_MPS, DrydenTurbulence, dryden_params
 
     if args.scenario:
-        from sim.scenario import load_scenario
+        from rollrig.sim.scenario import load_scenario
 
         sc = load_scenario(args.scenario)
         for src in sc.disturbances:
@@ -73,8 +73,8 @@ def _params(args):
 
 
 def run(args: argparse.Namespace) -> int:
-    from sim.report.table import render
-    from sim.report.turbulence_check import check_turbulence, plot_turbulence, turbulence_table
+    from rollrig.sim.report.table import render
+    from rollrig.sim.report.turbulence_check import check_turbulence, plot_turbulence, turbulence_table
 
     if not 10.0 <= args.duration_s <= 36_000.0:
         raise UserInputError(f"--duration-s {args.duration_s:g}: allowed: 10 ≤ value ≤ 36000")
@@ -84,14 +84,14 @@ def run(args: argparse.Namespace) -> int:
         raise UserInputError(f"--base-step-s {args.base_step_s:g}: allowed: 0.0001 ≤ value ≤ 0.1")
     params, dt = _params(args)
     if args.out is not None:
-        from sim.report.outdir import check_out_dir
+        from rollrig.sim.report.outdir import check_out_dir
 
         check_out_dir(args.out, args.force)
     chk = check_turbulence(params, dt=dt, duration_s=args.duration_s, runs=args.records, seed=args.seed)
     table = turbulence_table(chk)
     print_tables([table], args.format)
     if args.out is not None:
-        from sim.report.outdir import manifest, output_folder, write_json
+        from rollrig.sim.report.outdir import manifest, output_folder, write_json
 
         with output_folder(args.out, force=args.force) as tmp:
             plot_turbulence(chk, tmp / "turbulence_psd.png")

@@ -20,9 +20,8 @@ from pathlib import Path
 from typing import Any
 
 import numpy as np
-
-from sim import __version__
-from sim.errors import UserInputError
+from rollrig.sim import __version__
+from rollrig.sim.errors import UserInputError
 
 from . import CAUTION
 from .table import jsonable
@@ -79,8 +78,15 @@ def write_json(path: Path, data: Any) -> None:
     Path(path).write_text(json.dumps(jsonable(data), indent=2, ensure_ascii=False) + "\n")
 
 
-def manifest(*, scenario_path: str, scenario_sha256: str, seed: int, runs: list[int] | range,
-             extra: dict | None = None, command_line: list[str] | None = None) -> dict:
+def manifest(
+    *,
+    scenario_path: str,
+    scenario_sha256: str,
+    seed: int,
+    runs: list[int] | range,
+    extra: dict | None = None,
+    command_line: list[str] | None = None,
+) -> dict:
     """Provenance of an output folder."""
     runs = list(runs)
     data = {

@@ -5,8 +5,7 @@ from __future__ import annotations
 from pathlib import Path
 
 import numpy as np
-
-from sim.trace import Trace
+from rollrig.sim.trace import Trace
 
 __all__ = ["plot_bank", "plot_aileron", "plot_envelope", "pyplot"]
 

@@ -3,9 +3,8 @@
 from __future__ import annotations
 
 import numpy as np
-
-from sim.metrics import METRIC_INFO
-from sim.runner import CRITERIA_LABELS, RunOutcome, metric_spec
+from rollrig.sim.metrics import METRIC_INFO
+from rollrig.sim.runner import CRITERIA_LABELS, RunOutcome, metric_spec
 
 from . import CAUTION
 from .table import Table, fmt_number

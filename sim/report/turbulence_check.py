@@ -16,9 +16,8 @@ from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
-
-from sim.seeding import run_generators
-from sim.turbulence import DrydenParams, DrydenTurbulence, analytic_psd, stationary_sigma
+from rollrig.sim.seeding import run_generators
+from rollrig.sim.turbulence import DrydenParams, DrydenTurbulence, analytic_psd, stationary_sigma
 
 from .table import Table, fmt_number
 
