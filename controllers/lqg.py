@@ -29,7 +29,9 @@ covariance follows each run's own pattern of late and lost readings).
 
 Regulator
 ---------
-LQR gains from ``control.dlqr`` on the tick-discretised model augmented with
+LQR gains from SciPy's discrete algebraic Riccati solver
+(``scipy.linalg.solve_discrete_are``; the tests check them against
+python-control's ``dlqr``, which costs seconds to import) on the tick-discretised model augmented with
 the integral of the bank error (so a steady roll moment or servo offset
 leaves no steady error), with Bryson's rule weights (Bryson & Ho, *Applied
 Optimal Control*, 1975: each weight is one over the square of the largest
@@ -62,7 +64,7 @@ import scipy.linalg
 from .base import Observation
 from .model import LoopModel, SignalLoss, per_run
 
-__all__ = ["LQGConfig", "DelayLineKalman", "LQGController", "tick_maps"]
+__all__ = ["LQGConfig", "DelayLineKalman", "LQGController", "tick_maps", "lqr_gain"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -215,7 +217,7 @@ class DelayLineKalman:
         new[:, head:, :head] = cross.transpose(0, 2, 1)
         new[:, head:, head:] = P[:, n : n + L - s, n : n + L - s]
         zn = np.empty_like(z)
-        zn[:, :head] = z[:, :n] @ e.T + u[:, None] * self.f
+        zn[:, :head] = z[:, :n] @ e.T + np.broadcast_to(u, (self.batch,))[:, None] * self.f
         zn[:, head:] = z[:, n : n + L - s]
         self.z, self.P = zn, new
 
@@ -242,6 +244,12 @@ class DelayLineKalman:
         self.update(np.full(self.batch, self.cfg.model.p_index), rate, self.r_gyro, np.ones(self.batch, bool))
 
 
+def lqr_gain(a: np.ndarray, b: np.ndarray, q: np.ndarray, r: np.ndarray) -> np.ndarray:
+    """Discrete LQR gain ``K`` (``u = −K x``) from ``scipy.linalg.solve_discrete_are``."""
+    s = scipy.linalg.solve_discrete_are(a, b, q, r)
+    return np.linalg.solve(r + b.T @ s @ b, b.T @ s @ a)
+
+
 class LQGController:
     """Batch LQG bank-hold controller (see module docstring)."""
 
@@ -259,8 +267,6 @@ class LQGController:
         self.too_old = np.zeros(batch, dtype=np.int64)
 
     def _design(self, dt: float) -> None:
-        import control
-
         c, m, n, b = self.cfg, self.cfg.model, self.cfg.model.n, self.batch
         ad, bd = self.kf.E[:n], self.kf.f[:n]
         a_i = np.zeros((n + 1, n + 1))
@@ -284,8 +290,7 @@ class LQGController:
             q[m.phi_index, m.phi_index] = 1.0 / bank**2
             q[m.p_index, m.p_index] = 1.0 / rate**2
             q[n, n] = 1.0 / integ**2
-            k, _, _ = control.dlqr(a_i, b_i, q, np.array([[1.0 / ail**2]]))
-            gains[i] = np.asarray(k)[0]
+            gains[i] = lqr_gain(a_i, b_i, q, np.array([[1.0 / ail**2]]))[0]
         self.K = gains[np.ravel(inverse)]
         # steady state at unit bank: (ad - I) x + bd u = 0, x_phi = 1
         lhs = np.zeros((n + 1, n + 1))
