@@ -15,7 +15,32 @@ import numpy as np
 from .axes import Axis
 from .table import boundary_column
 
-__all__ = ["write_sweep_plots", "stat_columns"]
+__all__ = ["write_sweep_plots", "stat_columns", "boundary_lines"]
+
+
+def boundary_lines(xs: np.ndarray, ys: np.ndarray, frac: np.ndarray, level: float = 0.5) -> list[np.ndarray]:
+    """The boundary drawn on a heatmap: the ``level`` contour of a fraction on a grid.
+
+    Parameters
+    ----------
+    xs, ys : (nx,), (ny,)
+        Grid values of the two keys (increasing).
+    frac : (ny, nx)
+        Pass or settled fraction at each grid point (``nan`` where missing).
+    level : float
+        Contour level.
+
+    Returns
+    -------
+    list of (n, 2) arrays
+        Polylines ``(x, y)``; between two grid points the crossing is
+        interpolated linearly (``contourpy``, the contouring matplotlib uses).
+    """
+    import contourpy
+
+    z = np.ma.masked_invalid(np.asarray(frac, float))
+    gen = contourpy.contour_generator(np.asarray(xs, float), np.asarray(ys, float), z)
+    return [np.asarray(line) for line in gen.lines(level)]
 
 
 def stat_columns(metric: str, cols: list[str]) -> tuple[str, str | None, str | None, tuple[str, str] | None]:
@@ -100,9 +125,8 @@ def write_sweep_plots(
             ix, iy = np.searchsorted(xs, x), np.searchsorted(ys, y)
             Z[iy, ix], B[iy, ix] = z, b
             mesh = ax.pcolormesh(xs, ys, Z, shading="nearest", cmap="viridis")
-            if np.nanmin(B) < 0.5 < np.nanmax(B):
-                cs = ax.contour(xs, ys, B, levels=[0.5], colors="white", linewidths=2.0)
-                ax.clabel(cs, fmt={0.5: "boundary (50 %)"}, fontsize=8)
+            for k, line in enumerate(boundary_lines(xs, ys, B)):
+                ax.plot(line[:, 0], line[:, 1], color="white", lw=2.0, label=None if k else f"{bcol} = 0.5")
         else:
             mesh = ax.tricontourf(x, y, z, levels=12, cmap="viridis")
             ax.plot(x, y, "k.", ms=2)
