@@ -4,7 +4,6 @@ its points, and how the points are cut into chunks (batches)."""
 from __future__ import annotations
 
 import hashlib
-import json
 import math
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -24,20 +23,16 @@ __all__ = ["SweepPlan", "plan_sweep", "scenario_hash", "load_doc", "DEFAULT_CHUN
 DEFAULT_CHUNK_RUNS = 2000
 
 
-def scenario_hash(doc: dict) -> str:
-    """SHA-256 of a scenario document in canonical form (sorted keys, no comments or layout).
+def scenario_hash(doc: dict, file: str = "<scenario>") -> str:
+    """Canonical hash of a scenario document (:func:`rollrig.sim.scenario_writer.canonical_hash`).
 
-    Two files that differ only in comments, key order or spacing hash alike.
+    It identifies what is simulated: comments, layout, key order or an
+    explicit default do not change it.
     """
-    try:
-        from rollrig.sim.scenario import parse_scenario
-        from rollrig.sim.scenario_writer import canonical_hash  # when the scenario writer exists
+    from rollrig.sim.scenario import parse_scenario
+    from rollrig.sim.scenario_writer import canonical_hash
 
-        return canonical_hash(parse_scenario(doc))
-    except ImportError:
-        pass
-    text = json.dumps(doc, sort_keys=True, ensure_ascii=False, separators=(",", ":"), default=str)
-    return hashlib.sha256(text.encode()).hexdigest()
+    return canonical_hash(parse_scenario(doc, file=file))
 
 
 @dataclass(frozen=True)
@@ -123,6 +118,7 @@ def plan_sweep(
         if a.key in seen:
             raise UserInputError(f"--set {a.key}: given twice; allowed: one --set per key")
         seen.add(a.key)
+    scenario_with(doc, {}, file=file)  # the file itself is valid (its own one-line error)
     base = doc
     if runs is not None:
         base = set_dotted(base, "run.runs", int(runs))
@@ -147,7 +143,7 @@ def plan_sweep(
 
     definition = {
         "format": "rollrig-sweep/1",
-        "scenario_sha256_canonical": scenario_hash(doc),
+        "scenario_sha256_canonical": scenario_hash(doc, file),
         "axes": [a.to_json() for a in axes],
         "design": design,
         "points": int(coords.shape[0]),
