@@ -90,8 +90,9 @@ def run_dask(chunks: list[dict], on_rows: OnRows, client, *, tag: str) -> None:
         for c in chunks
     ]
     try:
-        for fut in as_completed(futures):
-            on_rows(fut.result())
+        with client.as_current():  # as_completed looks for a current client
+            for fut in as_completed(futures):
+                on_rows(fut.result())
     finally:
         for fut in futures:
             fut.release()
