@@ -35,6 +35,7 @@ COMMANDS: dict[str, tuple[str, str] | str] = {
     "make-log": ("makelog_cmd", "write a synthetic sensor log from a scenario (for fit-sensor)"),
     "margins": ("margins_cmd", "stability margins (analytic and empirical) and handling qualities"),
     "rank-faults": ("faults_cmd", "rank the camera's faults by what each costs the loop"),
+    "sweep": ("sweep_cmd", "map metrics over a grid or sample of scenario parameters (resumable)"),
 }
 
 #: signals treated like Ctrl-C: stop, remove partial output, exit 128 + number
