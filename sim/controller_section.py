@@ -20,7 +20,7 @@ from .section import Section
 
 __all__ = ["ControllerSpec", "parse_controller", "make_controller"]
 
-KINDS = ("pid", "custom")
+KINDS = ("pid", "custom", "policy")
 
 
 @dataclass(frozen=True)
@@ -46,6 +46,7 @@ class ControllerSpec:
     class_path: str | None = None
     params: dict[str, Any] = field(default_factory=dict)
     file: str = "<scenario>"
+    policy: Any = None  # (PolicyNet, ObservationLayout, meta, path) for kind = "policy"
 
 
 def parse_controller(sec: Section, *, base_step_s: float, aileron_limit_rad: float) -> ControllerSpec:
@@ -79,6 +80,8 @@ def parse_controller(sec: Section, *, base_step_s: float, aileron_limit_rad: flo
         )
         sec.finish()
         return ControllerSpec(kind=kind, rate_hz=rate, pid=pid, file=sec.file)
+    if kind == "policy":  # a trained policy file: arrays and JSON only, no code is loaded
+        return ControllerSpec(kind=kind, rate_hz=rate, policy=_load_policy(sec, rate), file=sec.file)
     path = sec.string("class")
     if path.count(":") != 1 or not all(path.split(":")):
         raise sec.error("class", f'= {path!r}; allowed: "package.module:ClassName"')
@@ -98,6 +101,12 @@ def make_controller(spec: ControllerSpec, *, allow_code: bool = False) -> Contro
     """
     if spec.kind == "pid":
         return PIDController(spec.pid)
+    if spec.kind == "policy":
+        from rollrig.controllers.policy import PolicyController
+
+        net, layout, meta, path = spec.policy
+        where = f"{spec.file}: [controller] file = {path!r}"
+        return PolicyController(net, layout, meta["action_scale_rad"], where=where, error=ScenarioError)
     where = f"{spec.file}: [controller] class"
     if not allow_code:
         raise ScenarioError(
@@ -116,3 +125,26 @@ def make_controller(spec: ControllerSpec, *, allow_code: bool = False) -> Contro
     if not isinstance(ctrl, Controller):
         raise ScenarioError(f"{where} = {spec.class_path!r} lacks reset(batch) and step(obs) methods")
     return ctrl
+
+
+def _load_policy(sec: Section, rate_hz: float):
+    """Load ``[controller] file`` (relative to the scenario's folder) and check its rate."""
+    from pathlib import Path
+
+    from rollrig.controllers.policy import PolicyFileError, load_policy
+
+    name = sec.string("file")
+    sec.finish()
+    path = Path(name)
+    if not path.is_absolute() and sec.file not in ("<scenario>", "<scenario dict>"):
+        path = Path(sec.file).parent / path
+    try:
+        net, layout, meta = load_policy(path)
+    except PolicyFileError as exc:
+        raise ScenarioError(f"{sec.file}: [controller] file: {exc}") from None
+    trained = meta.get("controller_rate_hz")
+    if trained is not None and abs(float(trained) - rate_hz) > 1e-9:
+        raise sec.error(
+            "rate_hz", f"= {rate_hz:g} but the policy was trained at {trained:g} Hz; allowed: {trained:g}"
+        )
+    return net, layout, meta, str(path)
