@@ -7,13 +7,11 @@ the user's code, so loading it needs the command line's explicit permission
 
 from __future__ import annotations
 
-import importlib
 import math
 from dataclasses import dataclass, field
 from typing import Any
 
-from rollrig.controllers.base import Controller
-from rollrig.controllers.pid import PIDConfig, PIDController
+from rollrig.controllers.pid import PIDConfig
 
 from .errors import ScenarioError
 from .section import Section
@@ -29,7 +27,7 @@ class ControllerSpec:
 
     Parameters
     ----------
-    kind : {"pid", "custom"}
+    kind : {"pid", "custom", "policy"}
     rate_hz : Hz
         Controller rate (a whole number of base steps per tick).
     pid : PIDConfig or None
@@ -90,49 +88,15 @@ def parse_controller(sec: Section, *, base_step_s: float, aileron_limit_rad: flo
     return ControllerSpec(kind=kind, rate_hz=rate, class_path=path, params=params, file=sec.file)
 
 
-def make_controller(spec: ControllerSpec, *, allow_code: bool = False) -> Controller:
-    """Instantiate the controller a spec names.
-
-    Raises
-    ------
-    ScenarioError
-        For a custom class when ``allow_code`` is false, or when it cannot be
-        imported or built.
-    """
-    if spec.kind == "pid":
-        return PIDController(spec.pid)
-    if spec.kind == "policy":
-        from rollrig.controllers.policy import PolicyController
-
-        net, layout, meta, path = spec.policy
-        where = f"{spec.file}: [controller] file = {path!r}"
-        return PolicyController(net, layout, meta["action_scale_rad"], where=where, error=ScenarioError)
-    where = f"{spec.file}: [controller] class"
-    if not allow_code:
-        raise ScenarioError(
-            f"{where} = {spec.class_path!r} would run your own code; "
-            "allowed only with --allow-code on the command line"
-        )
-    mod_name, cls_name = spec.class_path.split(":")
-    try:
-        cls = getattr(importlib.import_module(mod_name), cls_name)
-    except (ImportError, AttributeError) as exc:
-        raise ScenarioError(f"{where} = {spec.class_path!r} cannot be imported: {exc}") from None
-    try:
-        ctrl = cls(**spec.params)
-    except TypeError as exc:
-        raise ScenarioError(f"{spec.file}: [controller.params] do not fit {cls_name}: {exc}") from None
-    if not isinstance(ctrl, Controller):
-        raise ScenarioError(f"{where} = {spec.class_path!r} lacks reset(batch) and step(obs) methods")
-    return ctrl
-
-
 def _load_policy(sec: Section, rate_hz: float):
     """Load ``[controller] file`` (relative to the scenario's folder) and check its rate."""
     from pathlib import Path
 
     from rollrig.controllers.policy import PolicyFileError, load_policy
 
+    from .scenario_writer import register_controller_writer
+
+    register_controller_writer("policy", _write_policy)  # so policy scenarios can be written back
     name = sec.string("file")
     sec.finish()
     path = Path(name)
@@ -147,4 +111,13 @@ def _load_policy(sec: Section, rate_hz: float):
         raise sec.error(
             "rate_hz", f"= {rate_hz:g} but the policy was trained at {trained:g} Hz; allowed: {trained:g}"
         )
-    return net, layout, meta, str(path)
+    return net, layout, meta, str(path.resolve())
+
+
+def _write_policy(spec: ControllerSpec, arrays: bool) -> dict[str, Any]:
+    """``[controller]`` table of a policy controller (the file by absolute path)."""
+    return {"kind": "policy", "rate_hz": float(spec.rate_hz), "file": spec.policy[3]}
+
+
+# Built here before sim.build existed; kept importable from here.
+from .build import make_controller  # noqa: E402

@@ -162,3 +162,14 @@ def test_policy_controller_clips_to_the_trained_action_range():
     u = ctrl.step(obs)
     assert u[0] == pytest.approx(math.radians(20.0))  # saturated at a = 1
     assert u[1] == pytest.approx(-0.9 * math.radians(1.0))  # kp·error inside the range
+
+
+def test_a_policy_scenario_writes_back_and_hashes(policy_file, tmp_path):
+    from rollrig.sim.scenario import load_scenario, parse_scenario
+    from rollrig.sim.scenario_writer import canonical_hash, scenario_to_doc
+
+    sc = load_scenario(policy_scenario(tmp_path, policy_file))
+    doc = scenario_to_doc(sc)
+    assert doc["controller"]["kind"] == "policy"
+    again = parse_scenario(doc, file=str(tmp_path / "again.toml"))
+    assert canonical_hash(again) == canonical_hash(sc)
