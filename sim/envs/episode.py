@@ -27,9 +27,10 @@ from pathlib import Path
 
 import numpy as np
 
+from ..build import build_setup
 from ..core import LoopSetup
 from ..errors import UserInputError
-from ..scenario import Scenario, build_setup, load_scenario, parse_scenario
+from ..scenario import Scenario, load_scenario, parse_scenario
 
 __all__ = ["RANGES", "EpisodeDraw", "draw_episode", "check_ranges", "episode_setup", "as_scenario"]
 
