@@ -69,7 +69,7 @@ def run(args: argparse.Namespace) -> int:
         aggregate=args.aggregate,
     )
     out = args.out if args.out is not None else default_out_dir(f"tune-{Path(args.scenario).stem}")
-    check_out_dir(out, args.force)
+    check_out_dir(out, args.force, protect=[args.scenario])
     problem = prepare(sc, spec)
     with tune_progress(spec.generations, enabled=not args.quiet) as show:
         result = tune(problem, on_generation=show)
@@ -100,7 +100,7 @@ def run(args: argparse.Namespace) -> int:
             "interrupted": result.interrupted,
         },
     )
-    with output_folder(out, force=args.force) as tmp:
+    with output_folder(out, force=args.force, protect=[args.scenario]) as tmp:
         write_folder(tmp, result, validation, report, text, info)
     say_written(out, args.format)
     return 0
