@@ -30,8 +30,35 @@ from .cases import CaseSet, scenario_for_case
 
 __all__ = ["GridResult", "PER_RUN_AXES", "simulate_grid", "controller_for"]
 
-#: Degradation axes the stepping core takes as one value per run.
-PER_RUN_AXES = frozenset({"latency_s", "loss_rate"})
+
+def _per_run_axes() -> frozenset[str]:
+    """Degradation axes whose fields the stepping core takes as one value per run.
+
+    Read from the core's own table of per-run fields (:data:`sim.params.PER_RUN`)
+    where it has one; a core without it takes latency and losses only.
+    """
+    try:
+        from ..params import PER_RUN
+    except ImportError:
+        return frozenset({"latency_s", "loss_rate"})
+    cam = set(PER_RUN.get("CameraConfig", ()))
+    burst = set(PER_RUN.get("BurstConfig", ()))
+    field = {
+        "latency_s": "latency_s" in cam,
+        "noise_deg": "noise_rad" in cam,
+        "quantization_deg": "quantization_rad" in cam,
+        "bias_deg": "bias_rad" in cam,
+        "scale": "scale" in cam,
+        "loss_rate": "dropout_prob" in cam and "loss_rate" in burst,
+        "burst_frames": "mean_burst_frames" in burst,
+        "turbulence_scale": {"sigma_v_mps", "sigma_w_mps"} <= set(PER_RUN.get("DrydenParams", ())),
+    }
+    return frozenset(k for k, ok in field.items() if ok)
+
+
+#: Degradation axes the stepping core takes as one value per run (``frame_rate_hz``
+#: sets the frame schedule's shape and is shared by a batch).
+PER_RUN_AXES = _per_run_axes()
 
 #: Metrics kept from each run (the score terms and what the report shows).
 KEPT = (

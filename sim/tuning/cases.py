@@ -153,45 +153,50 @@ def worst_delay_values(spec: TuneSpec, sc: Scenario) -> np.ndarray:
     return vals
 
 
+def _value(v, f=lambda x: x):
+    """A case value: a float for one value, a float array for one value per run."""
+    return float(f(v)) if np.ndim(v) == 0 else f(np.asarray(v, float))
+
+
 def scenario_for_case(sc: Scenario, values: dict[str, float | np.ndarray]) -> Scenario:
     """The scenario with one case's degradations applied.
 
-    ``latency_s`` and ``loss_rate`` may be ``(batch,)`` arrays (one value per
-    run); every other axis takes one value.
+    Axes in :data:`sim.tuning.batch.PER_RUN_AXES` may be ``(batch,)`` arrays
+    (one value per run); ``frame_rate_hz`` takes one value.
     """
     cam = sc.camera
     ch: dict = {}
     if "latency_s" in values:
-        ch["latency_s"] = values["latency_s"]
+        ch["latency_s"] = _value(values["latency_s"])
     for key, attr in (
         ("noise_deg", "noise_rad"),
         ("quantization_deg", "quantization_rad"),
         ("bias_deg", "bias_rad"),
     ):
         if key in values:
-            ch[attr] = math.radians(float(values[key]))
+            ch[attr] = _value(values[key], np.radians)
     if "frame_rate_hz" in values:
         ch["frame_rate_hz"] = float(values["frame_rate_hz"])
     if "scale" in values:
-        ch["scale"] = float(values["scale"])
+        ch["scale"] = _value(values["scale"])
     if _bursty(sc, values):
         old = cam.bursts or BurstConfig(loss_rate=0.0, mean_burst_frames=1.0)
         ch["bursts"] = BurstConfig(
-            loss_rate=values.get("loss_rate", old.loss_rate),
-            mean_burst_frames=float(values.get("burst_frames", old.mean_burst_frames)),
+            loss_rate=_value(values.get("loss_rate", old.loss_rate)),
+            mean_burst_frames=_value(values.get("burst_frames", old.mean_burst_frames)),
         )
     elif "loss_rate" in values:
-        ch["dropout_prob"] = values["loss_rate"]
+        ch["dropout_prob"] = _value(values["loss_rate"])
     out = dataclasses.replace(sc, camera=dataclasses.replace(cam, **ch)) if ch else sc
     if "turbulence_scale" in values:
-        f = float(values["turbulence_scale"])
+        f = _value(values["turbulence_scale"])
         dist = []
         for d in out.disturbances:
             if hasattr(d, "params") and hasattr(d.params, "sigma_w_mps"):
                 p = dataclasses.replace(
                     d.params, sigma_v_mps=f * d.params.sigma_v_mps, sigma_w_mps=f * d.params.sigma_w_mps
                 )
-                d = type(d)(p)
+                d = dataclasses.replace(d, params=p) if dataclasses.is_dataclass(d) else type(d)(p)
             dist.append(d)
         out = dataclasses.replace(out, disturbances=tuple(dist))
     return out
