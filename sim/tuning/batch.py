@@ -1,6 +1,7 @@
 """Candidates × cases × seeds as batches of the stepping core.
 
-Every run of the grid is one run of a core batch with its own parameters:
+Every run of the grid is one run of a core batch (:func:`sim.driver.run_batch`,
+recording only what the metrics need) with its own parameters:
 the PID gains (``kp``, ``ki_per_s``, ``kd_s``) and the per-run camera fields
 travel as ``(batch,)`` arrays, so a whole population with every degradation
 case and seed is one batch (split into chunks of at most ``chunk_runs``
@@ -22,10 +23,10 @@ from dataclasses import dataclass
 import numpy as np
 from rollrig.controllers.pid import PIDController
 
-from ..core import simulate
-from ..metrics import evaluate
+from ..build import build_setup
+from ..driver import run_batch
 from ..runner import judge, metric_spec
-from ..scenario import Scenario, build_setup
+from ..scenario import Scenario
 from .cases import CaseSet, scenario_for_case
 
 __all__ = ["GridResult", "PER_RUN_AXES", "simulate_grid", "controller_for"]
@@ -145,22 +146,27 @@ def simulate_grid(
         group = np.array([c for c in range(n_c) if keys[c] == key])
         static_sc = scenario_for_case(sc, {cases.names[j]: v for j, v in zip(static, key, strict=True)})
         pp, cc, ss = (a.ravel() for a in np.meshgrid(np.arange(n_p), group, np.arange(n_s), indexing="ij"))
-        for lo in range(0, pp.size, chunk_runs):
-            p, c, s = pp[lo : lo + chunk_runs], cc[lo : lo + chunk_runs], ss[lo : lo + chunk_runs]
-            run_sc = scenario_for_case(static_sc, {cases.names[j]: cases.values[c, j] for j in dynamic})
-            ctrl = controller_for(sc, names, gains[p])
-            trace = simulate(build_setup(run_sc), ctrl, seed=sc.run.seed, run_indices=cases.seed_indices[s])
-            m = evaluate(trace, spec)
-            ok = judge(m, sc)
-            for k in KEPT:
-                if k in m:
-                    out[k][p, c, s] = m[k]
-                    present.add(k)
-            bank_ok[p, c, s] = ok["bank_limit"]
-            allok = np.ones(p.size, bool)
-            for v in ok.values():
-                allok &= v
-            passed[p, c, s] = allok
-            batches += 1
+        run_sc = scenario_for_case(static_sc, {cases.names[j]: cases.values[cc, j] for j in dynamic})
+        res = run_batch(
+            build_setup(run_sc),
+            controller_for(sc, names, gains[pp]),
+            seed=sc.run.seed,
+            run_indices=cases.seed_indices[ss],
+            record="metrics",
+            metric_spec=spec,
+            chunk_runs=chunk_runs,
+        )
+        m = res.metrics
+        ok = judge(m, sc)
+        for k in KEPT:
+            if k in m:
+                out[k][pp, cc, ss] = m[k]
+                present.add(k)
+        bank_ok[pp, cc, ss] = ok["bank_limit"]
+        allok = np.ones(pp.size, bool)
+        for v in ok.values():
+            allok &= v
+        passed[pp, cc, ss] = allok
+        batches += res.chunks
     metrics = {k: v for k, v in out.items() if k in present}
     return GridResult(metrics, passed, bank_ok, time.perf_counter() - t0, batches)
