@@ -20,7 +20,6 @@ Groups:
 
 from __future__ import annotations
 
-import math
 from collections.abc import Sequence
 
 import numpy as np
@@ -35,6 +34,8 @@ __all__ = [
     "warp",
     "defocus_blur",
     "per_image",
+    "KINDS",
+    "degrade",
     "Rng",
 ]
 
@@ -135,7 +136,10 @@ def glare_spot(images: np.ndarray, strength, x, y, radius) -> np.ndarray:
     cx, cy = per_image(x, b, "x", 3), per_image(y, b, "y", 3)
     rad = per_image(radius, b, "radius", 3)
     s = per_image(strength, b, "strength", 3)
-    spot = (s * np.exp(-((px - cx) ** 2 + (py - cy) ** 2) / (2.0 * rad**2))).astype(np.float32)
+    # the Gaussian separates: exp(−(dx² + dy²)/2r²) = exp(−dx²/2r²)·exp(−dy²/2r²)
+    gx = np.exp(-((px[None, :1, :] - cx) ** 2) / (2.0 * rad**2)) * s
+    gy = np.exp(-((py[None, :, :1] - cy) ** 2) / (2.0 * rad**2))
+    spot = gy.astype(np.float32) * gx.astype(np.float32)
     return np.minimum(images + _col(spot, colour), np.float32(1.0))
 
 
@@ -181,11 +185,15 @@ def warp(
     """
     b, h, w, colour = _spatial(images)
     u = w / 2.0
-    px, py = _xy(h, w)
-    rot = np.radians(per_image(rotation_deg, b, "rotation_deg", 3))
-    z = per_image(zoom, b, "zoom", 3)
-    sx = per_image(shift_x_px, b, "shift_x_px", 3) / u
-    sy = -per_image(shift_y_px, b, "shift_y_px", 3) / u
+    px, py = (a.astype(np.float32) for a in _xy(h, w))
+
+    def par(v, name):
+        return per_image(v, b, name, 3).astype(np.float32)
+
+    rot = np.radians(par(rotation_deg, "rotation_deg"))
+    z = par(zoom, "zoom")
+    sx = par(shift_x_px, "shift_x_px") / np.float32(u)
+    sy = -par(shift_y_px, "shift_y_px") / np.float32(u)
     tilt = np.radians(per_image(tilt_deg, b, "tilt_deg", 3))
     # output pixel -> where it came from: undo the shift, the tilt, the zoom and the rotation
     qx, qy = px - sx, py - sy
@@ -200,67 +208,110 @@ def warp(
         across_src = across * f / (f * ct - across * st)
         along_src = along * (f + across_src * st) / f
         qx, qy = along_src * ca - across_src * sa, along_src * sa + across_src * ca
-    qx, qy = qx / z, qy / z
-    cr, sr = np.cos(rot), np.sin(rot)
-    srcx = cr * qx + sr * qy
-    srcy = -sr * qx + cr * qy
+    cr, sr = np.cos(rot) / z, np.sin(rot) / z
     # to pixel indices (column, row) of the source
-    col = srcx * u + u - 0.5
-    row = -srcy * u + h / 2.0 - 0.5
+    col = (cr * qx + sr * qy) * np.float32(u) + np.float32(u - 0.5)
+    row = (sr * qx - cr * qy) * np.float32(u) + np.float32(h / 2.0 - 0.5)
     return _bilinear(images, row, col, fill)
 
 
 def _bilinear(images: np.ndarray, row: np.ndarray, col: np.ndarray, fill: float) -> np.ndarray:
+    """Bilinear samples at fractional ``(row, col)`` ``(batch, h, w)``; outside the picture: ``fill``."""
     b, h, w, colour = _spatial(images)
-    r0 = np.floor(row)
-    c0 = np.floor(col)
-    fr = (row - r0).astype(np.float32)
-    fc = (col - c0).astype(np.float32)
-    r0 = r0.astype(np.int64)
-    c0 = c0.astype(np.int64)
-    flat = images.reshape(b, h * w, -1)
-    out = np.zeros((b, h, w, flat.shape[-1]), dtype=np.float32)
-    for dr, dc, wt in (
-        (0, 0, (1 - fr) * (1 - fc)),
-        (0, 1, (1 - fr) * fc),
-        (1, 0, fr * (1 - fc)),
-        (1, 1, fr * fc),
-    ):
-        rr, cc = r0 + dr, c0 + dc
-        ok = (rr >= 0) & (rr < h) & (cc >= 0) & (cc < w)
-        idx = (np.clip(rr, 0, h - 1) * w + np.clip(cc, 0, w - 1)).reshape(b, -1)
-        vals = np.take_along_axis(flat, idx[..., None], axis=1).reshape(b, h, w, -1)
-        vals = np.where(ok[..., None], vals, np.float32(fill))
-        out += wt[..., None] * vals
-    return out if colour else out[..., 0]
+    c = images.shape[3] if colour else 1
+    # a one-pixel border of ``fill`` around every image: clipped taps outside land on it
+    pad = np.full((b, h + 2, w + 2, c), np.float32(fill), dtype=np.float32)
+    pad[:, 1:-1, 1:-1] = images.reshape(b, h, w, c)
+    rr = np.clip(row.astype(np.float32) + np.float32(1.0), 0.0, h + 0.999)
+    cc = np.clip(col.astype(np.float32) + np.float32(1.0), 0.0, w + 0.999)
+    r0 = rr.astype(np.int64)
+    c0 = cc.astype(np.int64)
+    fr = rr - r0
+    fc = cc - c0
+    wp = w + 2
+    idx = r0 * wp + c0 + (np.arange(b) * ((h + 2) * wp))[:, None, None]
+    chans = []
+    for k in range(c):  # 3-D arrays per channel: numpy is slow with a length-1 last axis
+        flat = np.ascontiguousarray(pad[..., k]).ravel()
+        top = flat[idx] * (1 - fc) + flat[idx + 1] * fc
+        bottom = flat[idx + wp] * (1 - fc) + flat[idx + wp + 1] * fc
+        chans.append(top * (1 - fr) + bottom * fr)
+    return np.stack(chans, axis=-1) if colour else chans[0]
 
 
 def defocus_blur(images: np.ndarray, sigma_px) -> np.ndarray:
     """Gaussian blur of standard deviation ``sigma_px`` (pixels; 0 = sharp), edges extended.
 
-    A separable, normalised, sampled Gaussian kernel; each image may have its
-    own width.
+    A separable, normalised, sampled Gaussian kernel (SciPy's
+    ``gaussian_filter1d``); each image may have its own width.
     """
     b, h, w, colour = _spatial(images)
+    from scipy.ndimage import gaussian_filter1d
+
     s = per_image(sigma_px, b, "sigma_px", 1)
-    if np.all(s == 0):
-        return images.copy()
-    half = max(1, int(math.ceil(4.0 * float(s.max()))))
-    k = np.arange(-half, half + 1, dtype=np.float64)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        ker = np.exp(-0.5 * (k[None, :] / s[:, None]) ** 2)
-    ker[s == 0] = (k == 0).astype(float)
-    ker = (ker / ker.sum(axis=1, keepdims=True)).astype(np.float32)
-    x = images if colour else images[..., None]
-    for axis in (1, 2):
-        pad = [(0, 0)] * 4
-        pad[axis] = (half, half)
-        xp = np.pad(x, pad, mode="edge")
-        acc = np.zeros_like(x, dtype=np.float32)
-        n = x.shape[axis]
-        for j in range(2 * half + 1):
-            sl = [slice(None)] * 4
-            sl[axis] = slice(j, j + n)
-            acc += ker[:, j, None, None, None] * xp[tuple(sl)]
-        x = acc
-    return x if colour else x[..., 0]
+    out = np.array(images, dtype=np.float32, copy=True)
+    for value in np.unique(s):
+        if value <= 0:
+            continue
+        rows = np.flatnonzero(s == value)
+        part = out[rows]
+        for axis in (1, 2):  # sampled Gaussian, normalised, 4 σ each side, edges extended
+            part = gaussian_filter1d(part, float(value), axis=axis, mode="nearest", truncate=4.0)
+        out[rows] = part
+    return out
+
+
+# ------------------------------------------------------------------ named kinds
+#: degradation kinds by name: (what the strength means, default strengths)
+KINDS: dict[str, tuple[str, tuple[float, ...]]] = {
+    "noise": ("pixel noise std, fraction of full scale", (0.0, 0.02, 0.05, 0.1, 0.2)),
+    "dead_pixels": ("fraction of stuck pixels (half dead, half hot)", (0.0, 0.01, 0.02, 0.05, 0.1)),
+    "brightness": ("added brightness, fraction of full scale", (0.0, 0.1, 0.2, 0.3, 0.4)),
+    "contrast": ("contrast gain (1 = unchanged)", (1.0, 0.7, 0.5, 0.3, 0.15)),
+    "glare": (
+        "glare spot peak, fraction of full scale (random place on the face)",
+        (0.0, 0.25, 0.5, 0.75, 1.0),
+    ),
+    "shadow": ("shadow depth, fraction darkened (random edge across the face)", (0.0, 0.2, 0.4, 0.6, 0.8)),
+    "rotation": ("camera rotation against the instrument, deg", (0.0, 2.0, 5.0, 10.0, 20.0)),
+    "shift": ("camera shift, px (random direction)", (0.0, 1.0, 2.0, 4.0, 8.0)),
+    "tilt": ("perspective tilt, deg (random axis)", (0.0, 10.0, 20.0, 30.0, 40.0)),
+    "zoom": ("zoom factor (1 = nominal)", (1.0, 1.05, 1.1, 1.2, 1.3)),
+    "blur": ("defocus blur std, px", (0.0, 0.5, 1.0, 2.0, 3.0)),
+}
+
+
+def degrade(kind: str, images: np.ndarray, strength, rng: Rng) -> np.ndarray:
+    """Apply one named degradation kind at ``strength`` (scalar or ``(batch,)``, units in :data:`KINDS`).
+
+    Random placement (glare position, shadow edge, shift direction, tilt
+    axis) is drawn from ``rng`` per image.
+    """
+    b = images.shape[0]
+    s = per_image(strength, b, "strength", 1)
+    if kind == "noise":
+        return pixel_noise(images, s, rng)
+    if kind == "dead_pixels":
+        return bad_pixels(images, 0.5 * s, 0.5 * s, rng)
+    if kind == "brightness":
+        return brightness_contrast(images, brightness=s)
+    if kind == "contrast":
+        return brightness_contrast(images, contrast=s)
+    u = _draw(rng, b, (2,), "uniform").astype(np.float64)
+    if kind == "glare":
+        ang, rad = 2 * np.pi * u[:, 0], 0.6 * np.sqrt(u[:, 1])  # uniform over a disc of 0.6 units
+        return glare_spot(images, s, rad * np.cos(ang), rad * np.sin(ang), 0.15)
+    if kind == "shadow":
+        return shadow_edge(images, s, 360.0 * u[:, 0], 0.5 * (2.0 * u[:, 1] - 1.0))
+    if kind == "rotation":
+        return warp(images, rotation_deg=s)
+    if kind == "shift":
+        ang = 2 * np.pi * u[:, 0]
+        return warp(images, shift_x_px=s * np.cos(ang), shift_y_px=s * np.sin(ang))
+    if kind == "tilt":
+        return warp(images, tilt_deg=s, tilt_axis_deg=360.0 * u[:, 0])
+    if kind == "zoom":
+        return warp(images, zoom=s)
+    if kind == "blur":
+        return defocus_blur(images, s)
+    raise ValueError(f"kind = {kind!r}; allowed: {', '.join(KINDS)}")

@@ -58,7 +58,7 @@ COLOURS = {
     "tick": (0.02, 0.02, 0.02),
     "sky": (0.55, 0.78, 1.00),
     "ground": (0.45, 0.28, 0.12),
-    "symbol": (1.00, 0.75, 0.10),
+    "symbol": (1.00, 0.55, 0.00),  # orange: its gray (0.62) shows on sky and ground alike
 }
 
 _LUMA = np.array([0.299, 0.587, 0.114])

@@ -298,6 +298,11 @@ class OnnxReader:
     name = "onnx"
 
     def __init__(self, path: str | Path, size_px: int, chunk: int = 1024) -> None:
+        p = Path(path)
+        try:
+            data = p.read_bytes()
+        except OSError as exc:
+            raise ReaderLoadError(f"{p}: cannot be read ({exc.strerror or exc})") from None
         try:
             import onnxruntime as ort
         except ImportError:
@@ -305,11 +310,6 @@ class OnnxReader:
                 f"{path}: reading an ONNX model needs onnxruntime; "
                 "install the extra: pip install 'rollrig[vision]'"
             ) from None
-        p = Path(path)
-        try:
-            data = p.read_bytes()
-        except OSError as exc:
-            raise ReaderLoadError(f"{p}: cannot be read ({exc.strerror or exc})") from None
         try:
             opts = ort.SessionOptions()
             opts.log_severity_level = 3
