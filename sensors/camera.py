@@ -145,6 +145,9 @@ class CameraConfig:
         Classification-style reader, when set.
     bursts : BurstConfig or None
         Bursty losses, when set (in addition to ``dropout_prob``).
+    image : sensors.image_stage.ImageStageSpec or None
+        Image-level stage, when set: each frame's bank is what an image reader
+        reads from a rendered, degraded picture (see :mod:`sensors.image_stage`).
     """
 
     frame_rate_hz: float = 30.0
@@ -165,6 +168,7 @@ class CameraConfig:
     beyond_range: str = "invalid"
     classifier: ClassifierConfig | None = None
     bursts: BurstConfig | None = None
+    image: object | None = None  # sensors.image_stage.ImageStageSpec: read rendered pictures
 
     def __post_init__(self) -> None:
         if self.beyond_range not in ("invalid", "saturate"):
@@ -352,6 +356,7 @@ class CameraReader:
         self._last_value = np.zeros(batch)
         self._last_time = np.full(batch, -np.inf)
         self._rows = np.arange(batch)
+        self._image = None if cfg.image is None else cfg.image.start(n, batch, rng_for)
         self._tick = 0
         self._prev_idx = None
 
@@ -365,9 +370,13 @@ class CameraReader:
             bank = w[-1] * self.history[cap, rows]
             for i in range(1, w.size):
                 bank += w[-1 - i] * self.history[np.maximum(cap - i, 0), rows]
+        if self._image is not None:  # the reader's reading of the rendered picture replaces the bank
+            bank, seen = self._image.read(bank, frames, rows)
         off = self._offset if np.isscalar(self._offset) else self._offset[frames, rows]
         value, ok, conf = read_frames(bank, self.cfg, off, self._centres)
         ok &= self._kept[frames, rows]
+        if self._image is not None:
+            ok &= seen
         return value, ok, conf
 
     def read(self, t: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:

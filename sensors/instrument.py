@@ -208,15 +208,21 @@ class Instrument:
         """Coverage of each pixel by the sky half-plane, ``(batch, h, w)`` float32."""
         bank = np.atleast_1d(np.asarray(bank_rad, dtype=np.float64)).ravel()
         u = self._u
-        # signed distance above the horizon in pixels, + 1/2 for the box filter: one matrix product
-        coef = np.empty((bank.size, 3), dtype=np.float32)
-        coef[:, 0] = np.cos(bank) * u
-        coef[:, 1] = -np.sin(bank) * u
-        coef[:, 2] = 0.5
+        # signed distance above the horizon in pixels, + 1/2 for the box filter (elementwise, so
+        # every image is computed the same way whatever the batch)
+        c = (np.cos(bank) * u).astype(np.float32)[:, None]
+        s = (-np.sin(bank) * u).astype(np.float32)[:, None]
+        off = np.full(bank.size, 0.5)
         if pitch_rad is not None:
-            p = np.broadcast_to(np.asarray(pitch_rad, dtype=np.float64), bank.shape)
-            coef[:, 2] += p * PITCH_UNITS_PER_RAD * u
-        d = coef @ self._yx1
+            off = (
+                off
+                + np.broadcast_to(np.asarray(pitch_rad, dtype=np.float64), bank.shape)
+                * PITCH_UNITS_PER_RAD
+                * u
+            )
+        d = self._yx1[0][None, :] * c
+        d += self._yx1[1][None, :] * s
+        d += off.astype(np.float32)[:, None]
         np.clip(d, 0.0, 1.0, out=d)
         return d.reshape(bank.size, self.size_px, self.size_px)
 

@@ -135,8 +135,10 @@ class MomentReader:
         if g.shape[1:] != (self.size_px, self.size_px):
             raise ValueError(f"images are {g.shape[1:]}; this reader reads {self.size_px} px squares")
         flat = g.reshape(b, -1)
-        s = flat @ self._w  # (b, 3): Σ v, Σ v x, Σ v y over the annulus
-        s2 = (flat * flat) @ self._m
+        # (b, 3): Σ v, Σ v x, Σ v y over the annulus. einsum, not a BLAS product: its sums run in
+        # the same order whatever the batch, so a run reads bit for bit the same alone as in a batch
+        s = np.einsum("bp,pk->bk", flat, self._w)
+        s2 = np.einsum("bp,bp,p->b", flat, flat, self._m)
         mean = s[:, 0] / self.n
         std = np.sqrt(np.maximum(s2 / self.n - mean * mean, 0.0))
         mx, my = s[:, 1].astype(np.float64), s[:, 2].astype(np.float64)  # Σx = Σy = 0 on the grid
@@ -212,9 +214,9 @@ class RobustReader:
         thr = panel + 0.5 * (flat.mean(axis=1) - panel)
         m = (flat > thr[:, None]).astype(np.float32)
         area = m.sum(axis=1) / self._u**2
-        with np.errstate(divide="ignore", invalid="ignore"):
-            cx = (m @ self._x.astype(np.float32)) / self._u**2 / area
-            cy = (m @ self._y.astype(np.float32)) / self._u**2 / area
+        with np.errstate(divide="ignore", invalid="ignore"):  # einsum: same sums alone as in a batch
+            cx = np.einsum("bp,p->b", m, self._x.astype(np.float32)) / self._u**2 / area
+            cy = np.einsum("bp,p->b", m, self._y.astype(np.float32)) / self._u**2 / area
         scale = np.sqrt(np.maximum(area, 1e-12) / np.pi) / self._r_mask
         cx = np.nan_to_num(cx) - scale * self._off[0]
         cy = np.nan_to_num(cy) - scale * self._off[1]
@@ -252,8 +254,8 @@ class RobustReader:
         with np.errstate(divide="ignore", invalid="ignore"):
             s = np.clip((f - 0.5 * (q25 + q75)[:, None]) / half[:, None], -1.0, 1.0)
         s = np.nan_to_num(s)
-        c1 = s @ np.cos(self._theta) / self._theta.size
-        s1 = s @ np.sin(self._theta) / self._theta.size
+        c1 = np.einsum("bk,k->b", s, np.cos(self._theta)) / self._theta.size
+        s1 = np.einsum("bk,k->b", s, np.sin(self._theta)) / self._theta.size
         sky_dir = np.arctan2(s1, c1)  # = π/2 + horizon angle in the image
         strength = np.hypot(c1, s1) / (2.0 / np.pi)  # 1 for a clean two-level disc
         # the case ring: rotation of the bank scale by circular cross-correlation with its template

@@ -486,7 +486,10 @@ def fitted_scenario(sc, fit):
             noise_rad=min(fit.noise_rad, math.radians(30.0)),
             outlier_prob=min(fit.outlier_prob, 0.5),
             outlier_rad=min(fit.outlier_rad, math.pi),
-            dropout_prob=min(fit.dropout_prob, 0.99),
+            # the reader's invalid frames on top of the scenario's own independent losses
+            dropout_prob=min(
+                1.0 - (1.0 - np.asarray(sc.camera.dropout_prob)) * (1.0 - fit.dropout_prob), 0.99
+            ),
             quantization_rad=fit.quantization_rad,
             wander_rad=0.0,
             classifier=None,

@@ -27,6 +27,13 @@ def add_parser(sub) -> None:
     )
     p.add_argument("--draws", type=int, help="random draws per condition (overrides [read_test] draws)")
     p.add_argument("--seed", type=int, help="seed (overrides [read_test] seed)")
+    p.add_argument(
+        "--loop-runs",
+        type=int,
+        metavar="N",
+        help="also run N runs of the image-level closed loop at the first operating condition and compare "
+        "them with the fitted model (needs a scenario)",
+    )
     p.add_argument("--allow-code", action="store_true", help="allow a python: reader (runs your code)")
     p.add_argument("--format", choices=("table", "csv", "json", "md"), default="table")
     p.add_argument(
@@ -58,6 +65,13 @@ def run(args: argparse.Namespace) -> int:
         if args.seed < 0:
             raise UserInputError(f"--seed {args.seed}: allowed: seed ≥ 0")
         spec = replace(spec, seed=args.seed)
+    if args.loop_runs is not None:
+        if rt.scenario is None:
+            raise UserInputError(f"{args.file}: --loop-runs needs a scenario around the [read_test] section")
+        if not 2 <= args.loop_runs <= 10_000:
+            raise UserInputError(
+                f"--loop-runs {args.loop_runs}: allowed: 2 ≤ N ≤ 10000 (an interval needs 2)"
+            )
     reader = make_reader(
         spec.reader, spec.size_px, allow_code=args.allow_code, base_dir=str(Path(args.file).parent)
     )
@@ -67,6 +81,20 @@ def run(args: argparse.Namespace) -> int:
         check_out_dir(out_dir, args.force)
     res = run_read_test(spec, reader, reader_name=spec.reader)
     tables = [rep.condition_table(res), rep.ranking_table(res), rep.fit_table(res)]
+    if args.loop_runs is not None:
+        from rollrig.sim.analysis.image_loop import image_scenario, surrogate_fidelity
+
+        fit = res.fits[0]
+        sc_img = image_scenario(
+            rt.scenario,
+            reader,
+            size_px=spec.size_px,
+            colour=spec.colour,
+            bits=spec.bits,
+            degradations=((fit.kind, fit.strength),),
+        )
+        fid = surrogate_fidelity(sc_img, fitted_scenario(rt.scenario, fit), args.loop_runs)
+        tables.append(rep.fidelity_table(fid, fit.kind, fit.strength))
     print_tables(tables, args.format)
     print(
         f"{sum(r.size for r in res.readings.values())} images read in {res.seconds:.1f} s",
