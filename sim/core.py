@@ -255,9 +255,6 @@ class Stepper:
         s = self.setup
         runs = np.asarray(run_indices, dtype=np.int64).reshape(-1)
         batch = runs.size
-        fixed = s.batch_size()
-        if fixed is not None and fixed != batch:
-            raise ValueError(f"the setup holds per-run parameters for {fixed} runs; got {batch} run indices")
         self.seed, self.runs, self.batch = int(seed), runs.copy(), batch
         self.record = record
         n, nx, every = s.n_steps, self._nx, s.ctrl_every
