@@ -397,6 +397,8 @@ class CameraReader:
         self._weights = np.zeros((width, batch))
         for r, w in enumerate(ws):
             self._weights[width - w.size :, r] = w
+        same = bool(np.all(self._weights == self._weights[:, :1]))
+        self._w_shared = [float(x) for x in self._weights[:, 0]] if same and batch else None
         self.last_value = np.zeros(batch)
         self.last_time = np.full(batch, -np.inf)
         self._rows = np.arange(batch)
@@ -450,9 +452,12 @@ class CameraReader:
         if w.shape[0] == 1:
             bank = self.history[cap, rows]
         else:  # one gather per base step of the exposure (few), newest first
-            bank = w[-1, rows] * self.history[cap, rows]
+            wr = self._w_shared
+            if wr is None:  # exposure per run: each run's own weights
+                wr = [w[i, rows] for i in range(w.shape[0])]
+            bank = wr[-1] * self.history[cap, rows]
             for i in range(1, w.shape[0]):
-                bank += w[-1 - i, rows] * self.history[np.maximum(cap - i, 0), rows]
+                bank += wr[-1 - i] * self.history[np.maximum(cap - i, 0), rows]
         value, ok, conf = read_frames(bank, self.cfg, self._offset[frames, rows], self._centres, rows)
         ok &= self._kept[frames, rows]
         return value, ok, conf
