@@ -164,9 +164,13 @@ def run_batch(
         raise ValueError("record='metrics' needs a metric_spec")
     runs = np.asarray(list(run_indices), dtype=np.int64).reshape(-1)
     batch = runs.size
-    fixed = setup.batch_size()
+    try:
+        fixed = setup.batch_size()
+    except ValueError:
+        fixed = None  # per-run arrays disagree: the stepper names the field
     if fixed is not None and fixed != batch:
-        raise ValueError(f"the setup holds per-run parameters for {fixed} runs; got {batch} run indices")
+        fixed = None  # run as one batch: the stepper names the field that does not fit
+        chunk_runs = batch
     if chunk_runs is None:
         chunk_runs = batch if record == "full" else chunk_size(setup, batch, record)
     chunk_runs = max(1, min(int(chunk_runs), max(batch, 1)))

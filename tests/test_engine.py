@@ -183,3 +183,105 @@ def test_restart_rejects_bad_rows():
         st.restart([0, 0], [1, 2])
     with pytest.raises(ValueError, match="run indices"):
         st.restart([0], [1, 2])
+
+
+# ------------------------------------------------------------------ servo limits
+def test_limit_servo_decides_binding_with_the_limits_not_rounding():
+    """Regression: a free servo step inside both limits must stay as it is. Deciding by
+    ``clipped != free`` called it binding when ``before + (free - before)`` differs from
+    ``free`` in the last bit, and redid the plant step with another method."""
+    setup = everything_setup(20)
+    st = Stepper(setup)
+    st.reset(0, range(3))
+    nx = setup.plant.n_states
+    before, free = 0.20134152990016446, -0.13087330358127472
+    assert before + (free - before) != free  # the rounding case
+    X = np.zeros((st._nrow, 3))
+    Y = np.full((st._nrow, 3), 0.5)
+    X[nx] = [before, 0.0, 0.0]
+    lim, mc = setup.actuator.limit_rad, setup.actuator.rate_limit_rad_s * setup.dt
+    Y[nx] = [free, 0.9 * mc, 1.5 * mc]  # inside, inside, beyond the rate limit
+    st._max_change = np.full(3, 1.0)  # rate limit far away for run 0
+    st._max_change[1:] = mc
+    y_before = Y.copy()
+    st._limit_servo(X, Y, np.arange(3))
+    assert_array_equal(Y[:, :2], y_before[:, :2])  # untouched: neither limit binds
+    assert Y[nx, 2] == pytest.approx(mc, rel=1e-15)  # clipped to the rate limit
+    assert not np.array_equal(Y[:nx, 2], y_before[:nx, 2])  # plant redone with the mean servo
+    assert lim > mc
+
+
+# ------------------------------------------------------------------ recording levels and chunks
+def _spec(setup):
+    from rollrig.sim.metrics import MetricSpec, StepSegment
+
+    return MetricSpec(
+        steps=(StepSegment(0.3, setup.duration_s, 0.0, D(15)),),
+        settle_band_frac=0.05,
+        settle_band_rad=None,
+        hold_band_rad=D(2),
+        bank_limit_rad=D(60),
+        aileron_limit_rad=D(20),
+        aileron_rate_limit_rad_s=D(60),
+    )
+
+
+def test_metrics_level_and_chunks_give_the_full_levels_metrics_bit_for_bit():
+    from rollrig.sim.driver import run_batch
+    from rollrig.sim.metrics import evaluate
+
+    setup = everything_setup(400)
+    spec = _spec(setup)
+    full = run_batch(setup, pid(), seed=4, run_indices=range(5), metric_spec=spec)
+    want = evaluate(full.trace, spec)
+    for chunk in (5, 2, 1):
+        lean = run_batch(
+            setup, pid(), seed=4, run_indices=range(5), record="metrics", metric_spec=spec, chunk_runs=chunk
+        )
+        assert lean.trace is None and lean.chunks == -(-5 // chunk)
+        assert set(lean.metrics) == set(want)
+        for k, v in want.items():
+            assert_array_equal(lean.metrics[k], v, err_msg=k)
+        assert_array_equal(lean.run_index, np.arange(5))
+
+
+def test_chunks_cut_per_run_parameters_and_controllers():
+    from rollrig.sim.driver import run_batch
+
+    setup = everything_setup(200)
+    setup = LoopSetup(
+        **{**setup.__dict__, "camera": CameraConfig(noise_rad=np.array([0.0, 0.01, 0.02, 0.03]))}
+    )
+    ctrl = PIDController(PIDConfig(kp=np.array([0.3, 0.6, 0.9, 1.2]), ki_per_s=0.1, kd_s=0.05))
+    spec = _spec(setup)
+    one = run_batch(
+        setup, ctrl, seed=1, run_indices=range(4), record="metrics", metric_spec=spec, chunk_runs=4
+    )
+    three = run_batch(
+        setup, ctrl, seed=1, run_indices=range(4), record="metrics", metric_spec=spec, chunk_runs=3
+    )
+    for k in one.metrics:
+        assert_array_equal(one.metrics[k], three.metrics[k], err_msg=k)
+
+
+def test_perturbation_through_the_driver():
+    from rollrig.sim.driver import Perturbation, run_batch
+
+    ideal = ActuatorSpec(time_constant_s=0.0, limit_rad=1.0, rate_limit_rad_s=math.inf)
+    setup = LoopSetup(
+        **{**everything_setup(100).__dict__, "actuator": ideal, "disturbances": (), "gyro": None}
+    )
+
+    class Hold:
+        def reset(self, batch):
+            self.batch = batch
+
+        def step(self, obs):
+            return np.full(self.batch, 0.01)
+
+    res = run_batch(
+        setup, Hold(), seed=0, run_indices=[0, 0, 0], perturbation=Perturbation([1.0, 2.0, 1.0], [0, 0, 0.07])
+    )
+    ail = res.trace.aileron
+    assert np.allclose(ail[0, 1:], 0.01, rtol=1e-12) and np.allclose(ail[1, 1:], 0.02, rtol=1e-12)
+    assert np.all(ail[2, 1:8] == 0.0) and np.allclose(ail[2, 8:], 0.01, rtol=1e-12)
