@@ -64,6 +64,12 @@ def make_controller(
     """
     if spec.kind == "pid":
         return PIDController(spec.pid)
+    if spec.kind == "policy":  # arrays and JSON loaded at parse time; no code runs
+        from rollrig.controllers.policy import PolicyController
+
+        net, layout, meta, path = spec.policy
+        where = f"{spec.file}: [controller] file = {path!r}"
+        return PolicyController(net, layout, meta["action_scale_rad"], where=where, error=ScenarioError)
     if spec.kind in ("cascade", "lqg", "smith"):
         if scenario is None:
             raise ValueError(f"make_controller: kind {spec.kind!r} needs the scenario (its model)")

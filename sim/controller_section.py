@@ -39,7 +39,7 @@ __all__ = [
     "NEEDS_GYRO",
 ]
 
-KINDS = ("pid", "cascade", "lqg", "smith", "custom")
+KINDS = ("pid", "cascade", "lqg", "smith", "policy", "custom")
 #: kinds that cannot work without a rate gyro
 NEEDS_GYRO = ("cascade",)
 _D = math.radians
@@ -74,6 +74,7 @@ class ControllerSpec:
     params: dict[str, Any] = field(default_factory=dict)
     file: str = "<scenario>"
     label: str = ""
+    policy: Any = None  # (PolicyNet, ObservationLayout, meta, path) for kind = "policy"
 
     @property
     def name(self) -> str:
@@ -104,7 +105,8 @@ def load_controller_file(
 
 
 def parse_controller(sec: Section, *, base_step_s: float, aileron_limit_rad: float) -> ControllerSpec:
-    if sec.has("file"):
+    # a controller file by reference (for kind = "policy", "file" names its weights instead)
+    if sec.has("file") and sec._get("kind", None) != "policy":
         ref = sec.string("file")
         sec.finish()  # a reference stands alone
         target = Path(sec.file).parent / ref
@@ -164,6 +166,8 @@ def parse_controller(sec: Section, *, base_step_s: float, aileron_limit_rad: flo
         )
         sec.finish()
         return ControllerSpec(params=params, **common)
+    if kind == "policy":  # a trained policy file: arrays and JSON only, no code is loaded
+        return ControllerSpec(policy=_load_policy(sec, rate), **common)
     path = sec.string("class")
     if path.count(":") != 1 or not all(path.split(":")):
         raise sec.error("class", f'= {path!r}; allowed: "package.module:ClassName"')
@@ -196,6 +200,39 @@ def _parse_pid(sec: Section, rate: float, lim_deg: float) -> PIDConfig:
         hold_s=sec.number("hold_s", 0.5, lo=0.0, hi=60.0),
         fade_s=sec.number("fade_s", 1.0, lo=0.0, hi=60.0),
     )
+
+
+def _load_policy(sec: Section, rate_hz: float):
+    """Load ``[controller] file`` (relative to the scenario's folder) and check its rate."""
+    from pathlib import Path
+
+    from rollrig.controllers.policy import PolicyFileError, load_policy
+
+    name = sec.string("file")
+    sec.finish()
+    path = Path(name)
+    if not path.is_absolute() and sec.file not in ("<scenario>", "<scenario dict>"):
+        path = Path(sec.file).parent / path
+    try:
+        net, layout, meta = load_policy(path)
+    except PolicyFileError as exc:
+        raise ScenarioError(f"{sec.file}: [controller] file: {exc}") from None
+    trained = meta.get("controller_rate_hz")
+    if trained is not None and abs(float(trained) - rate_hz) > 1e-9:
+        raise sec.error(
+            "rate_hz", f"= {rate_hz:g} but the policy was trained at {trained:g} Hz; allowed: {trained:g}"
+        )
+    return net, layout, meta, str(path.resolve())
+
+
+def _write_policy(spec: ControllerSpec, arrays: bool) -> dict[str, Any]:
+    """``[controller]`` table of a policy controller (the file by absolute path)."""
+    return {"kind": "policy", "rate_hz": float(spec.rate_hz), "file": spec.policy[3]}
+
+
+from .scenario_writer import register_controller_writer  # noqa: E402
+
+register_controller_writer("policy", _write_policy)  # so policy scenarios can be written back
 
 
 # Built here before sim.build existed; kept importable from here.

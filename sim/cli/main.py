@@ -37,6 +37,10 @@ COMMANDS: dict[str, tuple[str, str] | str] = {
     "rank-faults": ("faults_cmd", "rank the camera's faults by what each costs the loop"),
     "sweep": ("sweep_cmd", "map metrics over a grid or sample of scenario parameters (resumable)"),
     "tune": ("tune_cmd", "search PID gains that stay good across camera degradations"),
+    "read-test": (
+        "readtest_cmd",
+        "characterise an image reader of the instrument across bank and degradations",
+    ),
 }
 
 #: signals treated like Ctrl-C: stop, remove partial output, exit 128 + number

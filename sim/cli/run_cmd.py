@@ -81,7 +81,7 @@ def run(args: argparse.Namespace) -> int:
         out_dir = args.out or default_out_dir(Path(sc.path).stem)
         check_out_dir(out_dir, args.force, protect=[args.scenario])
 
-    ctrl = make_controller(sc.controller, allow_code=args.allow_code)
+    ctrl = make_controller(sc.controller, allow_code=args.allow_code, scenario=sc)
     with progress_reporter(est.seconds, sc.run.duration_s, f"{len(runs)} run(s)") as tick:
         if tick is not None or sc.controller.kind != "pid":  # a user's class: check what it returns
             ctrl = CheckedController(ctrl, progress=tick)
