@@ -176,12 +176,28 @@ def _rollrig(args, **kw):
     )
 
 
+def _wait_for_handlers(pid: int, timeout_s: float = 120.0) -> None:
+    """Wait until the process catches SIGTERM (``SigCgt`` in /proc): rollrig's handlers are in."""
+    t_end = time.monotonic() + timeout_s
+    while time.monotonic() < t_end:
+        try:
+            status = Path(f"/proc/{pid}/status").read_text()
+        except OSError:
+            return
+        caught = int(next(ln.split()[1] for ln in status.splitlines() if ln.startswith("SigCgt")), 16)
+        if caught >> (signal.SIGTERM - 1) & 1:
+            return
+        time.sleep(0.05)
+    pytest.fail("rollrig did not start within the timeout")
+
+
 @pytest.mark.parametrize("sig,code", [(signal.SIGTERM, 143), (signal.SIGHUP, 129), (signal.SIGINT, 130)])
 def test_stop_signals_write_nothing(tmp_path, sig, code):
     sc = scenario(tmp_path, LONG)
     out = tmp_path / "out"
     p = _rollrig(["run", sc, "--out", out])
-    time.sleep(2.0)  # imports done, simulating
+    _wait_for_handlers(p.pid)  # main() runs (imports done): from here on a signal must be clean
+    time.sleep(0.5)
     p.send_signal(sig)
     stdout, stderr = p.communicate(timeout=60)
     assert p.returncode == code, stderr
