@@ -17,7 +17,7 @@ from typing import Any
 
 import numpy as np
 
-__all__ = ["plot_margins"]
+__all__ = ["plot_margins", "write_margin_plots"]
 
 
 def _save(fig: Any, plt: Any, path: Path) -> Path:
@@ -175,3 +175,21 @@ def plot_margins(
         f"MIL-F-9490D {'pass' if m.meets_mil_f_9490d else 'fail'}"
     )
     return _save(fig, plt, Path(path))
+
+
+def write_margin_plots(rep: Any, folder: Path) -> list[Path]:
+    """PNG plots of a scenario's margins report into ``folder`` (when a linear model exists).
+
+    Returns
+    -------
+    list of pathlib.Path
+        Files written.
+    """
+    out = []
+    if rep.parts is not None:
+        out.append(
+            plot_margins(
+                rep.parts, Path(folder) / "margins.png", result=rep.analytic, title=rep.scenario.title
+            )
+        )
+    return out
