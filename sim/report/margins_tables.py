@@ -50,6 +50,14 @@ def _lower_text(a: LoopMargins) -> str:
     return f"{_f(lo)} @ ω = 0 (L(0) < 0)" if w == 0.0 else f"{_f(lo)} @ {_f(w)} rad/s"
 
 
+def _crossover_of(a: LoopMargins, gm_db: float) -> float | None:
+    """Frequency of the phase crossover with gain margin ``gm_db`` (rad/s)."""
+    for w, g in zip(a.phase_crossovers_rad_s, a.phase_crossover_margins_db, strict=True):
+        if g == gm_db:
+            return w
+    return None
+
+
 def _lower_crossover(a: LoopMargins) -> float | None:
     """Frequency of the phase crossover giving the lower gain margin (rad/s)."""
     for w, g in zip(a.phase_crossovers_rad_s, a.phase_crossover_margins_db, strict=True):
@@ -189,7 +197,7 @@ def margin_table(rep: Any) -> Table:
         "—"
         if a is None
         else (
-            f"{_f(a_gm)} @ {_f(a.phase_crossover_rad_s)} rad/s"
+            f"{_f(a_gm)} @ {_f(_crossover_of(a, a_gm))} rad/s"
             if math.isfinite(a_gm)
             else "∞ (no phase crossover)"
         )
@@ -199,7 +207,10 @@ def margin_table(rep: Any) -> Table:
     if e is not None:
         g = e.gain
         e_gm = _db(g.value)
-        if g.bounded:
+        if g.bounded and g.saturation_limited:
+            e_gm = _db(g.settles_at)
+            e_txt = f"≥ {_f(e_gm)} (limited by actuator saturation)"
+        elif g.bounded:
             e_tol = 0.5 * (_db(g.fails_at) - _db(max(g.settles_at, 1e-300)))
             e_txt = f"{_f(e_gm)} ± {e_tol:.2g}"
         else:
@@ -219,8 +230,9 @@ def margin_table(rep: Any) -> Table:
         e_txt,
         f"≥ {MIL_F_9490D_GAIN_MARGIN_DB:g} dB",
         ok if gm_vals else None,
-        phase_crossover_rad_s=None if a is None else a.phase_crossover_rad_s,
+        phase_crossover_rad_s=None if a is None else _crossover_of(a, a_gm),
         empirical_tolerance_db=e_tol,
+        empirical_saturation_limited=None if e is None else e.gain.saturation_limited,
     )
     if a is not None:
         lo = a.lower_gain_margin_db
@@ -258,6 +270,19 @@ def margin_table(rep: Any) -> Table:
         "—" if e is None else _bracket(e.delay.value, e.delay.tolerance),
         empirical_tolerance_s=None if e is None else e.delay.tolerance,
     )
+    gyro_path = rep.parts is not None and rep.parts.derivative_source == "gyro" and rep.parts.kd_s != 0.0
+    if gyro_path or (e is not None and e.camera is not None):
+        a_cm = None if a is None else a.camera_delay_margin_s
+        ec = None if e is None else e.camera
+        row(
+            "camera_delay_margin_s",
+            "camera-delay margin (s)",
+            a_cm,
+            _f(a_cm),
+            None if ec is None else ec.value,
+            "—" if ec is None else _bracket(ec.value, ec.tolerance),
+            empirical_tolerance_s=None if ec is None else ec.tolerance,
+        )
     cam = rep.delay.total_s
     if cam > 0:
         row(
@@ -374,6 +399,23 @@ def margin_table(rep: Any) -> Table:
                 + "; a crossover (and a delay margin) set there is ill-conditioned: a model error of a "
                 "fraction of a dB adds or removes it, so analytic and empirical may differ."
             )
+    if gyro_path:
+        t.notes.append(
+            "Derivative from the gyro: the delay margin is extra delay at the aileron command (every "
+            "path); the camera-delay margin is extra delay of the camera reading alone (the gyro path "
+            "keeps its own), found from |C| = |1 + G| (analytic) and by raising the camera latency "
+            "(empirical)."
+        )
+    if e is not None and e.gain.saturation_limited:
+        t.notes.append(
+            "Empirical gain margin: the first failing gain drove the servo to a position or rate limit "
+            "in the first window, so the failure may be the limit's; the loop holds at least the gain shown."
+        )
+    if e is not None and e.frames_moved:
+        t.notes.append(
+            f"Empirical search on a finer base step ({e.base_step_s * 1e3:.3g} ms) than the scenario's: "
+            "frame capture instants moved, so it measured a slightly different loop."
+        )
     if a is not None:
         t.notes.extend(a.notes)
     if a is not None and e is not None:
