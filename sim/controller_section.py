@@ -7,15 +7,12 @@ the user's code, so loading it needs the command line's explicit permission
 
 from __future__ import annotations
 
-import importlib
 import math
 from dataclasses import dataclass, field
 from typing import Any
 
-from rollrig.controllers.base import Controller
-from rollrig.controllers.pid import PIDConfig, PIDController
+from rollrig.controllers.pid import PIDConfig
 
-from .errors import ScenarioError
 from .section import Section
 
 __all__ = ["ControllerSpec", "parse_controller", "make_controller"]
@@ -87,32 +84,5 @@ def parse_controller(sec: Section, *, base_step_s: float, aileron_limit_rad: flo
     return ControllerSpec(kind=kind, rate_hz=rate, class_path=path, params=params, file=sec.file)
 
 
-def make_controller(spec: ControllerSpec, *, allow_code: bool = False) -> Controller:
-    """Instantiate the controller a spec names.
-
-    Raises
-    ------
-    ScenarioError
-        For a custom class when ``allow_code`` is false, or when it cannot be
-        imported or built.
-    """
-    if spec.kind == "pid":
-        return PIDController(spec.pid)
-    where = f"{spec.file}: [controller] class"
-    if not allow_code:
-        raise ScenarioError(
-            f"{where} = {spec.class_path!r} would run your own code; "
-            "allowed only with --allow-code on the command line"
-        )
-    mod_name, cls_name = spec.class_path.split(":")
-    try:
-        cls = getattr(importlib.import_module(mod_name), cls_name)
-    except (ImportError, AttributeError) as exc:
-        raise ScenarioError(f"{where} = {spec.class_path!r} cannot be imported: {exc}") from None
-    try:
-        ctrl = cls(**spec.params)
-    except TypeError as exc:
-        raise ScenarioError(f"{spec.file}: [controller.params] do not fit {cls_name}: {exc}") from None
-    if not isinstance(ctrl, Controller):
-        raise ScenarioError(f"{where} = {spec.class_path!r} lacks reset(batch) and step(obs) methods")
-    return ctrl
+# Built here before sim.build existed; kept importable from here.
+from .build import make_controller  # noqa: E402

@@ -23,7 +23,6 @@ from rollrig.sensors.gyro import GyroConfig
 from .actuator import ActuatorSpec
 from .aircraft_section import parse_aircraft
 from .controller_section import ControllerSpec, parse_controller
-from .core import LoopSetup
 from .disturbance_section import parse_disturbance
 from .errors import ScenarioError
 from .plant import LinearPlant
@@ -297,22 +296,5 @@ def _parse_criteria(s: Section | None) -> CriteriaSpec:
     return spec
 
 
-# ------------------------------------------------------------------ build
-def build_setup(sc: Scenario) -> LoopSetup:
-    """The stepping core's setup for a scenario."""
-    run = sc.run
-    n = run.n_steps
-    t = np.arange(n + 1) * run.base_step_s
-    every = int(round(1.0 / (sc.controller.rate_hz * run.base_step_s)))
-    return LoopSetup(
-        plant=sc.plant,
-        dt=run.base_step_s,
-        n_steps=n,
-        ctrl_every=every,
-        actuator=sc.actuator,
-        camera=sc.camera,
-        gyro=sc.gyro,
-        bank_cmd=sc.command.on_grid(t),
-        x0=sc.x0,
-        disturbances=sc.disturbances,
-    )
+# Built here before sim.build existed; kept importable from here.
+from .build import build_setup  # noqa: E402
