@@ -23,8 +23,9 @@ extra latency is added to the fixed latency, as in the analytic delay
 budget); gyro noise and bias off; no turbulence, gusts or moment bias.
 Kept: latency, frame rate, exposure, camera scale and range, controller rate,
 servo lag and limits. The run starts at a small bank (``excitation_deg``,
-default 1°) with a zero bank command, so at the margins' boundaries the
-servo limits do not bind and the linear answer applies; well beyond a
+default 1°, divided by the member's gain factor so that every member's first
+command is the nominal loop's) with a zero bank command, so at the margins'
+boundaries the servo limits do not bind and the linear answer applies; well beyond a
 boundary the growth saturates into a limit cycle, which the criterion
 below still counts as not settling.
 
@@ -62,9 +63,10 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 from rollrig.controllers.base import Controller
-from rollrig.sim.controller_section import make_controller
-from rollrig.sim.core import LoopSetup, Stepper
-from rollrig.sim.scenario import Scenario, build_setup
+from rollrig.sim.build import build_setup, make_controller
+from rollrig.sim.core import LoopSetup
+from rollrig.sim.driver import Perturbation, run_batch
+from rollrig.sim.scenario import Scenario
 
 __all__ = [
     "LOSS_RESOLUTION",
@@ -303,7 +305,7 @@ def settle_verdict(
     bank: np.ndarray,
     rate: np.ndarray,
     window_steps: int,
-    excitation_rad: float,
+    excitation_rad: float | np.ndarray,
     bank_limit_rad: float,
     diverged: np.ndarray,
     band_rad: float | np.ndarray = math.inf,
@@ -316,7 +318,7 @@ def settle_verdict(
         True bank error (command 0) and roll rate on the base grid.
     window_steps : int
         Length of each judging window in base steps (``2·window_steps < n_t``).
-    excitation_rad : rad
+    excitation_rad : rad, float or (batch,)
         Initial bank; the last window's peak must be below it.
     bank_limit_rad : rad
         Crossing it anywhere means not settling.
@@ -557,13 +559,13 @@ def empirical_margins(
                 camera=_replace_known(setup.camera, latency_s=np.asarray(base.camera.latency_s, float) + c),
             )
         # The loop is linear while the servo limits do not bind, and the verdict only compares
-        # the envelope with itself and with the start: start smaller by the largest gain factor
-        # of the round, so the command at the start never exceeds the nominal loop's.
-        phi_r = phi0 / max(1.0, float(np.max(g)))
-        setup = replace(setup, x0=base.x0 * (phi_r / phi0))
+        # the envelope with itself and with the start: each member starts smaller by its gain
+        # factor (per-run initial state), so its first command equals the nominal loop's.
+        phi_r = phi0 / np.maximum(1.0, g)
+        setup = replace(setup, x0=np.outer(phi_r / phi0, base.x0))
         band = np.full(members, math.inf)
         if loss is not None:
-            band[slots["loss"]] = band_frac * phi_r
+            band[slots["loss"]] = band_frac * phi_r[slots["loss"]]
         settled, saturated = _simulate(
             setup, ctrl, g, d, st.seed, w_steps, phi_r, q.criteria.bank_limit_rad, band
         )
@@ -635,19 +637,16 @@ def _simulate(
     delay: np.ndarray,
     seed: int,
     w_steps: int,
-    phi0: float,
+    phi0: float | np.ndarray,
     bank_limit: float,
     band: np.ndarray,
 ) -> tuple[np.ndarray, np.ndarray]:
     """Settle verdicts of a batch and whether each run's servo met a limit in the first window."""
-    stepper = Stepper(setup)
     batch = gain.size
     # One run index for every member: identical random streams (nested losses).
-    obs = stepper.reset(seed, [0] * batch, input_gain=gain, input_delay_s=delay)
-    ctrl.reset(batch)
-    while obs is not None:
-        obs = stepper.advance(ctrl.step(obs))
-    tr = stepper.trace()
+    tr = run_batch(
+        setup, ctrl, seed=seed, run_indices=[0] * batch, perturbation=Perturbation(gain, delay)
+    ).trace
     settled, _ = settle_verdict(
         tr.bank, tr.roll_rate, w_steps, phi0, bank_limit, np.isfinite(tr.diverged_at), band
     )
@@ -711,11 +710,6 @@ def bank_step_time(
     setup = build_setup(q.with_run(duration_s=n * dt))
     target = math.radians(bank_change_deg)
     setup = replace(setup, bank_cmd=np.full(n + 1, overshoot_command * target), x0=np.zeros(q.plant.n_states))
-    stepper = Stepper(setup)
-    obs = stepper.reset(0, [0])
-    ctrl.reset(1)
-    while obs is not None:
-        obs = stepper.advance(ctrl.step(obs))
-    bank = stepper.trace().bank[0]
+    bank = run_batch(setup, ctrl, seed=0, run_indices=[0]).trace.bank[0]
     hit = np.nonzero(bank >= target)[0]
     return float(hit[0] * dt) if hit.size else math.inf
