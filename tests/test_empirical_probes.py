@@ -77,3 +77,26 @@ def test_gyro_derivative_loop_reports_camera_delay_margin_both_ways() -> None:
     assert_allclose(e.camera.value, m.camera_delay_margin_s, rtol=0.05)
     assert e.camera.value > 2.5 * e.delay.value
     assert np.isfinite(e.delay.value)
+
+
+def test_report_shows_both_delay_margins_for_a_gyro_loop() -> None:
+    from rollrig.sim.analysis.margins_report import margins_report
+    from rollrig.sim.report.margins_tables import margins_tables
+
+    d = doc(
+        model=UAV,
+        latency=0.1,
+        frame_hz=30.0,
+        pid={"kp": 0.5, "kd_s": 0.2, "derivative_filter_hz": 8.0, "derivative": "gyro", "stale_after_s": 2.0},
+        sensor_extra={"gyro": {"rate_hz": 100.0}},
+    )
+    rep = margins_report(parse_scenario(d), empirical=False, handling=False)
+    tables = margins_tables(rep, handling=False)
+    rows = {r["figure"]: r for r in tables[0].records}
+    assert_allclose(rows["camera_delay_margin_s"]["analytic"], rep.analytic.camera_delay_margin_s)
+    assert rows["camera_delay_margin_s"]["analytic"] > 3 * rows["delay_margin_s"]["analytic"]
+    assert any("camera-delay margin" in n for n in tables[0].notes)
+    # every crossover is listed in the second table
+    kinds = [r["crossover"] for r in tables[1].records]
+    assert kinds.count("gain") == len(rep.analytic.gain_crossovers_rad_s)
+    assert kinds.count("phase") == len(rep.analytic.phase_crossovers_rad_s)
