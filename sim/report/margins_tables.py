@@ -66,15 +66,44 @@ def _lower_crossover(a: LoopMargins) -> float | None:
     return None
 
 
+#: Phase crossovers whose gain margin exceeds this (dB) are summarised in one row.
+_FAR_DB = 40.0
+
+
 def crossover_table(a: LoopMargins) -> Table:
     """Every crossover of the loop: phase crossovers with their gain margins, gain crossovers
-    with their phase and delay margins (python-control's ``returnall``)."""
+    with their phase and delay margins (python-control's ``returnall``).
+
+    With exact delays the phase keeps falling, so phase crossovers repeat every
+    ``2π/τ`` up to the top of the grid with ever larger gain margins; those beyond
+    ±40 dB are summarised in one row (count and range; all are in ``LoopMargins``).
+    """
     t = Table(title="every crossover", columns=["crossover", "ω (rad/s)", "margin there"])
     t.records = []
+    far = []
     for w, g in zip(a.phase_crossovers_rad_s, a.phase_crossover_margins_db, strict=True):
+        if abs(g) > _FAR_DB:
+            far.append(w)
+            continue
         where = "ω = 0 (L(0) real, negative)" if w == 0.0 else _f(w, 4)
         t.add("phase (∠L = −180°)", where, f"gain margin {_f(g)} dB")
         t.records.append({"crossover": "phase", "omega_rad_s": w, "gain_margin_db": g})
+    if far:
+        t.add(
+            "phase (∠L = −180°)",
+            f"{len(far)} more, {_f(min(far), 4)} … {_f(max(far), 4)}",
+            f"gain margins beyond ±{_FAR_DB:g} dB (a delay wraps the phase every 2π/τ)",
+        )
+        t.records.append(
+            {
+                "crossover": "phase",
+                "omega_rad_s": None,
+                "gain_margin_db": None,
+                "more_count": len(far),
+                "more_from_rad_s": min(far),
+                "more_to_rad_s": max(far),
+            }
+        )
     for w, pm, dm in zip(
         a.gain_crossovers_rad_s, a.gain_crossover_margins_deg, a.gain_crossover_delay_margins_s, strict=True
     ):
