@@ -25,6 +25,7 @@ COMMANDS = {
     "margins": "margins_cmd",
     "rank-faults": "faults_cmd",
     "sweep": "sweep_cmd",
+    "report": "report_cmd",
 }
 
 
