@@ -171,7 +171,7 @@ def _stability(scs: list[Scenario], payload: dict, per_run: list[str], runs: int
     x0 = np.zeros(q.plant.n_states)
     x0[q.plant.phi_index] = phi0
     setup = replace(setup, bank_cmd=np.zeros(n_steps + 1), x0=x0)
-    ctrl = make_controller(q.controller, allow_code=payload.get("allow_code", False))
+    ctrl = make_controller(q.controller, allow_code=payload.get("allow_code", False), scenario=q)
     idx = np.tile(np.arange(runs), len(scs))
     trace = simulate(setup, ctrl, seed=q.run.seed, run_indices=idx)
     frac = q.criteria.settle_band_frac
