@@ -95,7 +95,8 @@ def test_paired_difference_is_the_per_run_difference(setup):
     assert d.mean == pytest.approx(per_run.mean(), rel=1e-12)
     assert d.ci95_low < d.mean < d.ci95_high
     scores = rank(res, parse_rank_by("itae", res.headline))
-    assert scores["LQG"] == pytest.approx(res.result("LQG").summaries["itae"].mean)
+    deg = 180.0 / np.pi  # ITAE is shown in deg s^2
+    assert scores["LQG"] == pytest.approx(res.result("LQG").summaries["itae"].mean * deg)
     weighted = rank(res, parse_rank_by("itae=1,rms_error_rad=3", res.headline))
     assert weighted["PID"] == pytest.approx(4.0)  # the baseline scores the sum of the weights
     with pytest.raises(UserInputError, match="allowed"):

@@ -313,7 +313,8 @@ def parse_rank_by(text: str, headline: Sequence[str]) -> dict[str, float]:
 def rank(cmp_: ScenarioComparison, weights: dict[str, float]) -> dict[str, float]:
     """Score per controller, lower is better.
 
-    One metric: its mean (sign-flipped where smaller is worse). Several: the
+    One metric: its mean in the metric's display unit (sign-flipped where
+    smaller is worse). Several: the
     weighted sum of each mean divided by the baseline's mean (unit-free), so
     ``1.0`` per unit weight is "as good as the baseline". A controller with a
     diverged run or an infinite mean scores ``inf``.
@@ -329,7 +330,7 @@ def rank(cmp_: ScenarioComparison, weights: dict[str, float]) -> dict[str, float
                 break
             sign = 1.0 if METRIC_INFO[key].larger_is_worse else -1.0
             if len(weights) == 1:
-                total = sign * s.mean
+                total = sign * s.mean * METRIC_INFO[key].scale
             else:
                 b = ref.summaries[key].mean
                 total += w * sign * (s.mean / b if b not in (0.0,) and math.isfinite(b) else s.mean)
