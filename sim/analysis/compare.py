@@ -13,8 +13,9 @@ scenario's own ``[controller]`` or a controller file read against each
 scenario's base step. Anything :func:`rollrig.sim.build.make_controller` can
 build is accepted, so new kinds need no change here.
 
-Margins: analytic ones (exact delays, :mod:`.linear_loop`) where the
-controller has a transfer function here (the PID); by experiment
+Margins: analytic ones (exact delays) where the controller's loop is linear
+and modelled here (the PID, :mod:`.linear_loop`; the cascade,
+:mod:`.compare_loops`); by experiment
 (:mod:`.empirical`, gain and delay at the aileron command) for every
 controller when asked.
 """
@@ -89,7 +90,7 @@ class PairingResult:
     bank: dict[int, np.ndarray]  # run index -> bank (rad) over t
     analytic: object | None = None  # LoopMargins, or None without a linear model
     analytic_note: str = ""
-    loop_parts: object | None = None  # LoopParts of a linear loop (Bode/Nichols)
+    loop_response: np.ndarray | None = None  # L(jω) on compare_loops.OMEGA (Bode/Nichols)
     empirical: object | None = None  # EmpiricalMargins, or None when not asked
 
 
@@ -160,14 +161,20 @@ def _with(sc: Scenario, spec: ControllerSpec) -> Scenario:
 
 
 def _analytic(sc: Scenario):
-    from .linear_loop import margins
+    """(margins, note, loop response on :data:`.compare_loops.OMEGA`) of a linear loop."""
+    from .compare_loops import OMEGA, cascade_response, frequency_margins
+    from .linear_loop import margins, open_loop_response
     from .loop_from_scenario import has_linear_model, loop_parts_from_scenario
 
-    if not has_linear_model(sc):
-        return None, "no linear model here", None
+    spec = sc.controller
     try:
+        if spec.kind == "cascade":
+            resp = cascade_response(sc, spec.params, spec.rate_hz)
+            return frequency_margins(resp), "", resp
+        if not has_linear_model(sc):
+            return None, "no linear model here", None
         parts = loop_parts_from_scenario(sc)
-        return margins(parts), "", parts
+        return margins(parts), "", open_loop_response(parts, OMEGA)
     except Exception as exc:  # an analysis failure must not sink the comparison
         return None, f"analytic margins failed: {exc}", None
 
@@ -201,7 +208,7 @@ def _run_pairing(
         bank={r: tr.bank[rows[r]].copy() for r in sorted(keep) if r in rows},
     )
     if margins in ("analytic", "all"):
-        res.analytic, res.analytic_note, res.loop_parts = _analytic(scp)
+        res.analytic, res.analytic_note, res.loop_response = _analytic(scp)
     if margins == "all":
         from .empirical import EmpiricalSettings, empirical_margins
 

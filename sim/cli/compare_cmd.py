@@ -126,6 +126,7 @@ def run(args: argparse.Namespace) -> int:
 def _write(args, results, tables, rows, cands) -> None:
     import hashlib
 
+    from rollrig.sim.analysis.compare_loops import OMEGA
     from rollrig.sim.report.compare_plots import plot_bank_overlay, plot_loops, plot_metric_bars
     from rollrig.sim.report.compare_tables import tidy_csv
     from rollrig.sim.report.outdir import manifest, output_folder, write_json
@@ -143,11 +144,11 @@ def _write(args, results, tables, rows, cands) -> None:
             plot_bank_overlay(c, tmp / f"{stem}-bank.png")
             plot_metric_bars(c, tmp / f"{stem}-metrics.png")
             loops += [
-                (f"{r.candidate} · {c.scenario.title}", r.loop_parts)
+                (f"{r.candidate} · {c.scenario.title}", r.loop_response)
                 for r in c.results
-                if r.loop_parts is not None
+                if r.loop_response is not None
             ]
-        plot_loops(loops, tmp / "loops.png")
+        plot_loops(loops, OMEGA, tmp / "loops.png")
         sc0 = results[0].scenario
         files = {
             c.name: (

@@ -85,20 +85,19 @@ def plot_metric_bars(cmp_, path: Path) -> None:
     plt.close(fig)
 
 
-def plot_loops(loops: list[tuple[str, object]], path: Path) -> bool:
-    """Bode (gain, phase) and Nichols overlay of the linear loops ``(label, LoopParts)``; False if none."""
+def plot_loops(loops: list[tuple[str, np.ndarray]], omega: np.ndarray, path: Path) -> bool:
+    """Bode (gain, phase) and Nichols overlay of loop responses ``(label, L(jω))``; False if none."""
     if not loops:
         return False
-    from rollrig.sim.analysis.linear_loop import open_loop_response
-
     plt = pyplot()
-    w = np.logspace(-1.5, 1.6, 500)  # up to ~40 rad/s: beyond, the delays' phase hides the crossovers
+    keep = omega <= 40.0  # beyond ~40 rad/s the delays' phase hides the crossovers
+    w = omega[keep]
     fig = plt.figure(figsize=(11, 6))
     ax_g = fig.add_subplot(2, 2, 1)
     ax_p = fig.add_subplot(2, 2, 3, sharex=ax_g)
     ax_n = fig.add_subplot(1, 2, 2)
-    for i, (label, parts) in enumerate(loops):
-        big_l = open_loop_response(parts, w)
+    for i, (label, big_l) in enumerate(loops):
+        big_l = np.asarray(big_l)[keep]
         gain_db = 20 * np.log10(np.abs(big_l))
         phase = np.degrees(np.unwrap(np.angle(big_l)))
         phase -= 360.0 * np.round((phase[0] + 90.0) / 360.0)  # start near −90° (integrating loop)

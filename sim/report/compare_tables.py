@@ -149,9 +149,8 @@ def comparison_table(
     if has_analytic:
         notes = {r.analytic_note for r in cmp_.results if r.analytic is None and r.analytic_note}
         t.notes.append(
-            "analytic margins: linear loop broken at the aileron command with exact delays (PID only; "
-            + ("; ".join(sorted(notes)) or "—")
-            + " for the others)."
+            "analytic margins: linear loop broken at the aileron command with exact delays (PID and "
+            "cascade, limits assumed not to bind; " + ("; ".join(sorted(notes)) or "—") + " for the others)."
         )
     if has_emp:
         t.notes.append(
