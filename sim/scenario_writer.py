@@ -219,6 +219,51 @@ def _pid(spec: ControllerSpec, arrays: bool) -> dict[str, Any]:
     }
 
 
+#: ``params`` of the bundled model-based kinds: file key -> (params key, file value per SI value)
+_OUTPUT_KEYS = {
+    "output_limit_deg": ("output_limit_rad", True),
+    "integrator_limit_deg": ("integrator_limit_rad", True),
+    "stale_after_s": ("stale_after_s", False),
+    "hold_s": ("hold_s", False),
+    "fade_s": ("fade_s", False),
+}
+_PARAM_KEYS = {
+    "cascade": {
+        "k_bank_per_s": ("k_bank_per_s", False),
+        "ki_bank_per_s2": ("ki_bank_per_s2", False),
+        "k_rate_s": ("k_rate_s", False),
+        "ki_rate": ("ki_rate", False),
+        "max_rate_deg_s": ("max_rate_rad_s", True),
+        "max_accel_deg_s2": ("max_accel_rad_s2", True),
+        **_OUTPUT_KEYS,
+    },
+    "lqg": {
+        "max_bank_error_deg": ("max_bank_error_rad", True),
+        "max_rate_deg_s": ("max_rate_rad_s", True),
+        "max_aileron_deg": ("max_aileron_rad", True),
+        "max_integral_deg_s": ("max_integral_rad_s", True),
+        "accel_noise_psd_rad2_s3": ("accel_psd", False),
+        "camera_noise_deg": ("camera_noise_rad", True),
+        "gyro_noise_deg_s": ("gyro_noise_rad_s", True),
+        "use_gyro": ("use_gyro", False),
+        **_OUTPUT_KEYS,
+    },
+    "smith": {"delay_from_age": ("from_age", False), "delay_s": ("delay_s", False)},
+}
+
+
+def _model_based(spec: ControllerSpec, arrays: bool) -> dict[str, Any]:
+    """Cascade, LQG and Smith predictor: their ``params`` back to file keys (None = not given)."""
+    out = _pid(spec, arrays) if spec.kind == "smith" else {"kind": spec.kind, "rate_hz": float(spec.rate_hz)}
+    out["kind"] = spec.kind
+    where = f"[controller] ({spec.kind})"
+    for key, (name, degrees) in _PARAM_KEYS[spec.kind].items():
+        value = spec.params.get(name)
+        if value is not None:
+            out[key] = _deg_of(value, where, arrays) if degrees else _num(value, where, arrays)
+    return out
+
+
 def _custom(spec: ControllerSpec, arrays: bool) -> dict[str, Any]:
     out: dict[str, Any] = {"kind": "custom", "rate_hz": float(spec.rate_hz), "class": spec.class_path}
     if spec.params:
@@ -230,6 +275,9 @@ def _custom(spec: ControllerSpec, arrays: bool) -> dict[str, Any]:
 _CONTROLLER_WRITERS: dict[str, Callable[[ControllerSpec, bool], dict[str, Any]]] = {
     "pid": _pid,
     "custom": _custom,
+    "cascade": _model_based,
+    "lqg": _model_based,
+    "smith": _model_based,
 }
 
 
@@ -247,7 +295,10 @@ def _controller(spec: ControllerSpec, arrays: bool) -> dict[str, Any]:
         writer = _CONTROLLER_WRITERS[spec.kind]
     except KeyError:
         raise UnwritableScenario(f"[controller] kind {spec.kind!r} has no scenario writer") from None
-    return writer(spec, arrays)
+    out = writer(spec, arrays)
+    if getattr(spec, "label", ""):
+        out["label"] = spec.label
+    return out
 
 
 def _command(sc: Scenario) -> dict[str, Any]:
