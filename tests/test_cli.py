@@ -78,6 +78,13 @@ def test_run_writes_complete_folder(cli, tmp_path, scenario):
     man = json.loads((out / "manifest.json").read_text())
     assert man["version"] == rollrig.__version__
     assert man["scenario_sha256"] == hashlib.sha256(scenario.read_bytes()).hexdigest()
+    # the canonical hash names the scenario as simulated: with --runs 2 applied
+    from rollrig.sim.scenario import load_scenario
+    from rollrig.sim.scenario_writer import canonical_hash
+
+    as_run = load_scenario(scenario).with_run(runs=2)
+    assert man["scenario_canonical_sha256"] == canonical_hash(as_run)
+    assert man["scenario_canonical_sha256"] != canonical_hash(load_scenario(scenario).with_run(runs=3))
     assert man["seed"] == doc["run"]["seed"]
     assert man["runs"] == 2
     cmd = man["command_line"]

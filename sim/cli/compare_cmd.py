@@ -129,7 +129,7 @@ def _write(args, results, tables, rows, cands) -> None:
     from rollrig.sim.analysis.compare_loops import OMEGA
     from rollrig.sim.report.compare_plots import plot_bank_overlay, plot_loops, plot_metric_bars
     from rollrig.sim.report.compare_tables import tidy_csv
-    from rollrig.sim.report.outdir import manifest, output_folder, write_json
+    from rollrig.sim.report.outdir import manifest, output_folder, scenario_hash, write_json
     from rollrig.sim.report.table import render
 
     with output_folder(args.out, force=args.force) as tmp:
@@ -162,12 +162,20 @@ def _write(args, results, tables, rows, cands) -> None:
             tmp / "manifest.json",
             manifest(
                 scenario_path=sc0.path,
+                scenario=sc0,
                 scenario_sha256=sc0.sha256,
                 seed=sc0.run.seed,
                 runs=range(sc0.run.runs),
                 command_line=getattr(args, "command_line", None),
                 extra={
-                    "scenarios": [{"path": c.scenario.path, "sha256": c.scenario.sha256} for c in results],
+                    "scenarios": [
+                        {
+                            "path": c.scenario.path,
+                            "sha256": c.scenario.sha256,
+                            "canonical_sha256": scenario_hash(c.scenario),
+                        }
+                        for c in results
+                    ],
                     "controllers": files,
                     "baseline": results[0].baseline,
                     "common_random_numbers": "same seed and run indices for every controller",

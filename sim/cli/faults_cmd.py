@@ -76,6 +76,7 @@ def run(args: argparse.Namespace) -> int:
                 tmp / "manifest.json",
                 manifest(
                     scenario_path=sc.path,
+                    scenario=sc,
                     scenario_sha256=sc.sha256,
                     seed=sc.run.seed,
                     runs=range(sc.run.runs),

@@ -127,6 +127,7 @@ def run(args: argparse.Namespace) -> int:
             write_json(
                 tmp / "manifest.json",
                 manifest(
+                    scenario=sc,
                     scenario_path=sc.path,
                     scenario_sha256=sc.sha256,
                     seed=args.seed,

@@ -90,6 +90,7 @@ def run(args: argparse.Namespace) -> int:
     print_tables(report.tables, args.format)
     info = manifest(
         scenario_path=sc.path,
+        scenario=sc,
         scenario_sha256=sc.sha256,
         seed=spec.seed,
         runs=range(spec.seeds),

@@ -49,6 +49,7 @@ __all__ = [
     "json_text",
     "jsonable",
     "manifest",
+    "scenario_hash",
     "MANIFEST",
     "clean_stale_partials",
 ]
@@ -304,8 +305,14 @@ def manifest(
     runs: list[int] | range,
     extra: dict | None = None,
     command_line: list[str] | None = None,
+    scenario: Any = None,
 ) -> dict:
-    """Provenance of an output folder."""
+    """Provenance of an output folder.
+
+    ``scenario`` (a :class:`~rollrig.sim.scenario.Scenario`, as simulated: after
+    command-line and in-memory changes) adds its canonical hash, which names
+    what was simulated whatever the file looked like.
+    """
     import platform
 
     import numpy as np
@@ -325,6 +332,18 @@ def manifest(
         "numpy": np.__version__,
         "caution": CAUTION,
     }
+    if scenario is not None:
+        data["scenario_canonical_sha256"] = scenario_hash(scenario)
     if extra:
         data.update(extra)
     return data
+
+
+def scenario_hash(scenario: Any) -> str:
+    """Canonical hash of a scenario as simulated, or why there is none (never raises)."""
+    from ..scenario_writer import UnwritableScenario, canonical_hash
+
+    try:
+        return canonical_hash(scenario)
+    except UnwritableScenario as exc:
+        return f"unavailable: {exc}"

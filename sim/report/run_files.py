@@ -189,6 +189,7 @@ def write_run_files(
         folder / "manifest.json",
         manifest(
             scenario_path=sc.path,
+            scenario=sc,
             scenario_sha256=sc.sha256,
             seed=sc.run.seed,
             runs=run_indices,
