@@ -24,6 +24,7 @@ COMMANDS = {
     "make-log": "makelog_cmd",
     "margins": "margins_cmd",
     "rank-faults": "faults_cmd",
+    "train": "train_cmd",
 }
 
 
