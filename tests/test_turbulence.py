@@ -15,7 +15,7 @@ import scipy.integrate
 import scipy.linalg
 import scipy.signal
 from numpy.testing import assert_allclose, assert_array_equal
-from rollrig.sim.disturbance import DisturbanceSet, DisturbanceSource
+from rollrig.sim.disturbance import DisturbanceSet, DisturbanceSource, disturbance_record
 from rollrig.sim.seeding import run_generators
 from rollrig.sim.turbulence import (
     FT_M,
@@ -38,9 +38,7 @@ W20_MOD = 30.0 * 1852.0 / 3600.0  # 30 kt, MIL-F-8785C "moderate" (REFERENCES.md
 def simulate(params: DrydenParams, dt: float, n: int, runs, seed: int = 7, block: int = 4096):
     """(n, batch, 4) gust inputs, fetched in blocks as the stepping core does."""
     src = DrydenTurbulence(params)
-    src.reset(dt, run_generators(seed, list(runs), src.component))
-    parts = [src.block(k, min(block, n - k)) for k in range(0, n, block)]
-    return np.concatenate(parts, axis=0)
+    return disturbance_record(src, dt, n, lambda name: run_generators(seed, list(runs), name), block=block)
 
 
 def autocorr(params: DrydenParams, dt: float, lags: int) -> np.ndarray:
@@ -328,8 +326,5 @@ def test_protocol_and_disturbance_set():
     assert isinstance(src, DisturbanceSource)
     assert src.component == "dryden"
     ds = DisturbanceSet([src])
-    ds.reset(0.01, lambda name: run_generators(3, range(2), name))
-    out = ds.block(0, 100, 2)
+    out = disturbance_record(ds, 0.01, 100, lambda name: run_generators(3, range(2), name))
     assert out.shape == (100, 2, 4) and np.all(np.isfinite(out)) and np.any(out[..., 0] != 0)
-    with pytest.raises(ValueError, match="in order"):
-        src.block(50, 10)  # a gap: blocks must be contiguous
