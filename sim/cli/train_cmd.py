@@ -137,7 +137,11 @@ def run(args: argparse.Namespace) -> int:
             if meta.get("checkpoint")
             else ""
         )
-        print(f"rollrig: interrupted after iteration {len(result.history)}{where}", file=sys.stderr)
+        done = result.history[-1]["iteration"] if result.history else 0
+        if args.algo == "ars":
+            print(f"rollrig: interrupted after iteration {done}{where}", file=sys.stderr)
+        else:
+            print(f"rollrig: interrupted after {done} steps; nothing was written", file=sys.stderr)
         return 130
 
     from rollrig.sim.training.runs import finish
