@@ -148,6 +148,9 @@ class CameraConfig:
         Classification-style reader, when set.
     bursts : BurstConfig or None
         Bursty losses, when set (in addition to ``dropout_prob``).
+    image : sensors.image_stage.ImageStageSpec or None
+        Image-level stage, when set: each frame's bank is what an image reader
+        reads from a rendered, degraded picture (see :mod:`sensors.image_stage`).
     """
 
     frame_rate_hz: float = 30.0
@@ -168,6 +171,7 @@ class CameraConfig:
     beyond_range: str = "invalid"
     classifier: ClassifierConfig | None = None
     bursts: BurstConfig | None = None
+    image: object | None = None  # sensors.image_stage.ImageStageSpec: read rendered pictures
 
     def __post_init__(self) -> None:
         if self.beyond_range not in ("invalid", "saturate"):
@@ -385,6 +389,8 @@ class CameraReader:
         self._prev_value = np.zeros(batch)
         self._prev_valid = np.zeros(batch, dtype=bool)
         self.history: np.ndarray | None = None
+        # image-level stage: its per-run streams are set by start()
+        self._image = None if cfg.image is None else cfg.image.start(n, batch, lambda name: [None] * batch)
 
     def start(self, rows: np.ndarray, rng_for: RngFor) -> None:
         """(Re)start the runs ``rows``: new timing plan and draws from ``rng_for`` (one generator per row)."""
@@ -417,6 +423,8 @@ class CameraReader:
         self.last_value[rows] = 0.0
         self.last_time[rows] = -np.inf
         self._prev_idx[rows] = -2
+        if self._image is not None:
+            self._image.restart(rows, rng_for)
 
     @property
     def plan(self) -> FramePlan:
@@ -433,8 +441,12 @@ class CameraReader:
             bank = w[-1, rows] * self.history[cap, rows]
             for i in range(1, w.shape[0]):
                 bank += w[-1 - i, rows] * self.history[np.maximum(cap - i, 0), rows]
+        if self._image is not None:  # the reader's reading of the rendered picture replaces the bank
+            bank, seen = self._image.read(bank, frames, rows)
         value, ok, conf = read_frames(bank, self.cfg, self._offset[frames, rows], self._centres, rows)
         ok &= self._kept[frames, rows]
+        if self._image is not None:
+            ok &= seen
         return value, ok, conf
 
     def read(self, tick, t) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
