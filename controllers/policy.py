@@ -119,32 +119,36 @@ class ObservationBuilder:
         self.layout = layout
 
     def reset(self, batch: int) -> None:
-        h = self.layout.history
-        self._hist = np.zeros((3, h, batch))  # reading, valid, age; newest first
+        self._out = np.zeros((batch, self.layout.size))  # the vector being kept up to date
         self._first = True
 
     def __call__(self, obs: Observation, prev_action: np.ndarray) -> np.ndarray:
         """Observation vectors ``(batch, size)`` float32 for this tick (call once per tick)."""
-        hist = self._hist
+        out, h = self._out, self.layout.history
         reading = np.asarray(obs.bank, dtype=float) / BANK_SCALE_RAD
-        valid = np.asarray(obs.valid, dtype=float)
-        age = np.minimum(np.asarray(obs.age, dtype=float) / AGE_SCALE_S, AGE_CLIP)
-        new = np.stack([reading, valid, age])  # (3, batch)
-        if self._first:
-            hist[:] = new[:, None, :]
-            self._first = False
-        else:
-            hist[:, 1:] = hist[:, :-1]
-            hist[:, 0] = new
-        batch = hist.shape[2]
-        cmd = np.broadcast_to(np.asarray(obs.bank_cmd, dtype=float), (batch,)) / BANK_SCALE_RAD
-        cols = [hist.reshape(-1, batch)]
+        fields = (reading, obs.valid, np.minimum(np.asarray(obs.age, dtype=float) / AGE_SCALE_S, AGE_CLIP))
+        for i, new in enumerate(fields):  # newest first: shift the history by one tick
+            block = out[:, i * h : (i + 1) * h]
+            if self._first:
+                block[:] = np.asarray(new, dtype=float)[:, None]
+            else:
+                block[:, 1:] = block[:, :-1].copy()
+                block[:, 0] = new
+        self._first = False
+        j = 3 * h
         if self.layout.gyro:
-            rate = obs.rate if obs.rate is not None else np.zeros(batch)
-            rate = np.clip(np.asarray(rate, dtype=float) / RATE_SCALE_RAD_S, -RATE_CLIP, RATE_CLIP)
-            cols.append(rate[None])
-        cols.append(np.stack([cmd, cmd - reading, np.broadcast_to(prev_action, (batch,))]))
-        return np.concatenate(cols).T.astype(np.float32)
+            if obs.rate is not None:
+                np.clip(
+                    np.asarray(obs.rate, dtype=float) / RATE_SCALE_RAD_S, -RATE_CLIP, RATE_CLIP, out=out[:, j]
+                )
+            else:
+                out[:, j] = 0.0
+            j += 1
+        cmd = np.asarray(obs.bank_cmd, dtype=float) / BANK_SCALE_RAD
+        out[:, j] = cmd
+        out[:, j + 1] = cmd - reading
+        out[:, j + 2] = prev_action
+        return out.astype(np.float32)
 
 
 class PolicyNet:

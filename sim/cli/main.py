@@ -43,6 +43,7 @@ COMMANDS: dict[str, tuple[str, str] | str] = {
         "characterise an image reader of the instrument across bank and degradations",
     ),
     "compare": ("compare_cmd", "put controllers side by side on the same runs (common random numbers)"),
+    "train": ("train_cmd", "train a learned policy (ARS; PPO/SAC with the rl extra) and judge it"),
 }
 
 #: signals treated like Ctrl-C: stop, remove partial output, exit 128 + number

@@ -90,23 +90,26 @@ def draw_episode(
     return EpisodeDraw(run_index=idx, **values)
 
 
-class ScaledDisturbance:
-    """A disturbance source whose output is multiplied by a per-run factor.
+#: intensity fields of each disturbance source that ``turbulence_scale`` multiplies
+_INTENSITY = {
+    "SteadyRollMoment": ("accel_rad_s2", "step_accel_rad_s2"),
+    "OneMinusCosineGust": ("amplitude",),
+}
 
-    Keeps the wrapped source's random-stream name, so scaling never changes
-    which numbers it draws.
+
+def scale_disturbance(src, scale):
+    """A disturbance source with its intensity multiplied by ``scale`` (float or ``(batch,)``).
+
+    Scaling changes no random draw: the source keeps its stream name.
     """
-
-    def __init__(self, source, scale: np.ndarray) -> None:
-        self.source = source
-        self.scale = np.asarray(scale, dtype=float)
-        self.component = source.component
-
-    def reset(self, dt: float, rngs) -> None:
-        self.source.reset(dt, rngs)
-
-    def block(self, k0: int, n: int) -> np.ndarray:
-        return self.source.block(k0, n) * self.scale[None, :, None]
+    name = type(src).__name__
+    if name == "DrydenTurbulence":
+        p = src.params
+        params = replace(p, sigma_v_mps=p.sigma_v_mps * scale, sigma_w_mps=p.sigma_w_mps * scale)
+        return replace(src, params=params)
+    if name not in _INTENSITY:
+        raise UserInputError(f"turbulence_scale: disturbance {name} cannot be scaled")
+    return replace(src, **{f: getattr(src, f) * scale for f in _INTENSITY[name]})
 
 
 def episode_setup(base: LoopSetup, sc: Scenario, draw: EpisodeDraw) -> LoopSetup:
@@ -128,8 +131,9 @@ def episode_setup(base: LoopSetup, sc: Scenario, draw: EpisodeDraw) -> LoopSetup
     if cam:
         changes["camera"] = replace(base.camera, **cam)
     if draw.turbulence_scale is not None:
-        scale = np.array([draw.turbulence_scale])
-        changes["disturbances"] = tuple(ScaledDisturbance(s, scale) for s in base.disturbances)
+        changes["disturbances"] = tuple(
+            scale_disturbance(s, draw.turbulence_scale) for s in base.disturbances
+        )
     return replace(base, **changes) if changes else base
 
 

@@ -139,12 +139,8 @@ class RollHoldEnv(gym.Env):
         ranges = check_ranges(options["randomize"], "options") if "randomize" in options else self.ranges
         self.draw = draw_episode(self.np_random, ranges, options.get("run_index"))
         setup = episode_setup(self.base, self.scenario, self.draw)
-        # The core's matrices depend only on plant, servo and step, which
-        # episodes never change: keep one Stepper and hand it each episode's setup.
-        if self._stepper is None:
-            self._stepper = Stepper(setup)
-        self._stepper.setup = setup
-        obs = self._stepper.reset(self.scenario.run.seed, [self.draw.run_index])
+        self._stepper = Stepper(setup)
+        obs = self._stepper.reset(self.scenario.run.seed, [self.draw.run_index], record="none")
         self.builder.reset(1)
         self._prev = np.zeros(1)
         self._tick = 0
@@ -156,8 +152,9 @@ class RollHoldEnv(gym.Env):
         a = np.clip(np.asarray(action, dtype=float).reshape(1), -1.0, 1.0)
         obs = st.advance(a * self.action_scale_rad)
         self._tick += 1
-        bank = st.rec_bank[st.k]
-        cmd = st.setup.bank_cmd[st.k]
+        k = int(st.episode_step[0])
+        bank = st.bank.copy()
+        cmd = st.setup.bank_cmd[k]
         reward = float(step_reward(bank, cmd, a, self._prev, self.bank_limit_rad)[0])
         terminated = bool(abs(bank[0]) > self.bank_limit_rad or not st.alive[0])
         truncated = obs is None and not terminated
@@ -166,11 +163,11 @@ class RollHoldEnv(gym.Env):
         if obs is None:  # no next tick: the last reading, one tick older
             last = self._last
             obs = Observation(
-                t=st.k * st.setup.dt,
+                t=k * st.setup.dt,
                 dt=last.dt,
                 bank=last.bank,
                 valid=last.valid,
-                age=last.age + (st.k * st.setup.dt - last.t),
+                age=last.age + (k * st.setup.dt - last.t),
                 bank_cmd=np.full(1, cmd),
                 rate=last.rate,
             )
@@ -184,12 +181,13 @@ class RollHoldEnv(gym.Env):
         from .render import attitude_picture
 
         st = self._stepper
+        k = int(st.episode_step[0])
         return attitude_picture(
-            float(st.rec_bank[st.k, 0]),
+            float(st.bank[0]),
             float(self._last.bank[0]),
             bool(self._last.valid[0]),
-            float(st.setup.bank_cmd[st.k]),
-            st.k * st.setup.dt,
+            float(st.setup.bank_cmd[k]),
+            k * st.setup.dt,
         )
 
     # ------------------------------------------------------------- helpers
@@ -198,4 +196,4 @@ class RollHoldEnv(gym.Env):
 
     def _info(self) -> dict:
         st = self._stepper
-        return {"t_s": st.k * st.setup.dt, "bank_true_rad": float(st.rec_bank[st.k, 0])}
+        return {"t_s": float(st.episode_time_s[0]), "bank_true_rad": float(st.bank[0])}

@@ -12,22 +12,19 @@ Autoreset follows gymnasium 1.x's ``NEXT_STEP`` mode (declared in
 returns that member's first observation of a new episode, with reward 0 and
 neither flag set, and ignores its action.
 
-Restarting members. The core used here starts a whole batch at once, so
-members that start a new episode together form a *cohort* with its own
-batched core; cohorts are stepped one after another and dropped when their
-last member ends. With episodes of equal length (truncation at the
-scenario's duration) all members stay in one cohort; early terminations
-split them. Members can share a core only where the core takes per-run
-values: the camera's latency and frame-loss probability, the disturbance
-scale (:class:`~rollrig.sim.envs.episode.ScaledDisturbance`) and the command
-(applied here). Randomising the initial bank or the camera noise makes every
-member its own cohort (correct, but one core call per member).
+Restarting members. Members that start a new episode at the same step
+form a *cohort*: one batched core whose per-run parameters (initial bank,
+camera latency, noise and frame losses, disturbance intensity) are that
+cohort's draws; the command is scaled here. Cohorts are stepped one after
+another and dropped when their last member ends. With episodes of equal
+length (truncation at the scenario's duration) every member stays in one
+cohort; early terminations split them. (The core's own per-row
+``restart`` keeps a row's parameters, so it cannot start an episode with
+newly drawn ones; a cohort can.)
 """
 
 from __future__ import annotations
 
-import copy
-import math
 from collections.abc import Mapping
 from dataclasses import replace
 from pathlib import Path
@@ -41,45 +38,44 @@ from rollrig.controllers.policy import ObservationBuilder, ObservationLayout
 
 from ..core import Stepper
 from ..scenario import Scenario
-from .episode import EpisodeDraw, ScaledDisturbance, as_scenario, base_setup, check_ranges, draw_episode
+from .episode import EpisodeDraw, as_scenario, base_setup, check_ranges, draw_episode, scale_disturbance
 from .roll_env import RewardWeights, observation_space, step_reward
 
 __all__ = ["RollHoldVectorEnv"]
 
-#: randomised values a batched core can take per run
-_PER_RUN = ("command_scale", "latency_s", "dropout_prob", "turbulence_scale")
-
 
 class _Cohort:
-    """Members that started their episodes together, on one batched core."""
+    """Members that started their episodes together, on one batched core with per-run parameters."""
 
     def __init__(self, env: RollHoldVectorEnv, members: np.ndarray, draws: list[EpisodeDraw]) -> None:
         self.members = members
         self.active = np.ones(members.size, dtype=bool)
         base, d0 = env.base, draws[0]
+
+        def col(key: str) -> np.ndarray:
+            return np.array([getattr(d, key) for d in draws])
+
         changes = {}
-        if d0.initial_bank_deg is not None:  # shared by the cohort (see _cohorts)
-            x0 = np.array(base.x0, dtype=float)
-            x0[env.scenario.plant.phi_index] = math.radians(d0.initial_bank_deg)
+        if d0.initial_bank_deg is not None:
+            x0 = np.tile(np.asarray(base.x0, dtype=float), (len(draws), 1))
+            x0[:, env.scenario.plant.phi_index] = np.radians(col("initial_bank_deg"))
             changes["x0"] = x0
         cam = {}
         if d0.noise_deg is not None:
-            cam["noise_rad"] = math.radians(d0.noise_deg)
+            cam["noise_rad"] = np.radians(col("noise_deg"))
         if d0.latency_s is not None:
-            cam["latency_s"] = np.array([d.latency_s for d in draws])
+            cam["latency_s"] = col("latency_s")
         if d0.dropout_prob is not None:
-            cam["dropout_prob"] = np.array([d.dropout_prob for d in draws])
+            cam["dropout_prob"] = col("dropout_prob")
         if cam:
             changes["camera"] = replace(base.camera, **cam)
         if d0.turbulence_scale is not None:
-            scale = np.array([d.turbulence_scale for d in draws])
-            changes["disturbances"] = tuple(ScaledDisturbance(s, scale) for s in base.disturbances)
+            scale = col("turbulence_scale")
+            changes["disturbances"] = tuple(scale_disturbance(s, scale) for s in base.disturbances)
         setup = replace(base, **changes) if changes else base
-        self.cmd_scale = None if d0.command_scale is None else np.array([d.command_scale for d in draws])
-        # the core's matrices depend only on plant, servo and step: share them
-        self.stepper = copy.copy(env.template)
-        self.stepper.setup = setup
-        obs = self.stepper.reset(env.scenario.run.seed, [d.run_index for d in draws])
+        self.cmd_scale = None if d0.command_scale is None else col("command_scale")
+        self.stepper = Stepper(setup)
+        obs = self.stepper.reset(env.scenario.run.seed, [d.run_index for d in draws], record="none")
         self.builder = ObservationBuilder(env.layout)
         self.builder.reset(members.size)
         self.prev = np.zeros(members.size)
@@ -89,7 +85,8 @@ class _Cohort:
     def _commanded(self, obs: Observation) -> Observation:
         if self.cmd_scale is None:
             return obs
-        return replace(obs, bank_cmd=self.stepper.setup.bank_cmd[self.stepper.k] * self.cmd_scale)
+        k = int(self.stepper.episode_step[0])  # members of a cohort share one clock
+        return replace(obs, bank_cmd=self.stepper.setup.bank_cmd[k] * self.cmd_scale)
 
     def vectors(self, obs: Observation) -> np.ndarray:
         return self.builder(obs, self.prev)
@@ -119,7 +116,6 @@ class RollHoldVectorEnv(gym.vector.VectorEnv):
         self.scenario = as_scenario(scenario)
         self.ranges = check_ranges(randomize)
         self.base = base_setup(self.scenario)
-        self.template = Stepper(self.base)
         self.layout = ObservationLayout(history=int(history), gyro=self.scenario.gyro is not None)
         self.single_observation_space = observation_space(self.layout)
         self.single_action_space = gym.spaces.Box(-1.0, 1.0, shape=(1,), dtype=np.float32)
@@ -178,22 +174,18 @@ class RollHoldVectorEnv(gym.vector.VectorEnv):
     # ------------------------------------------------------------- helpers
     def _start(self, members: np.ndarray, obs: np.ndarray) -> None:
         draws = [draw_episode(self._rngs[i], self._ranges, self._run_index) for i in members]
-        shared = [k for k in ("initial_bank_deg", "noise_deg") if k in self._ranges]
-        groups: dict[tuple, list[int]] = {}
-        for j, d in enumerate(draws):
-            groups.setdefault(tuple(getattr(d, k) for k in shared), []).append(j)
-        for rows in groups.values():
-            c = _Cohort(self, members[rows], [draws[j] for j in rows])
-            obs[c.members] = c.vectors(c.last)
-            self._cohorts.append(c)
+        c = _Cohort(self, members, draws)
+        obs[c.members] = c.vectors(c.last)
+        self._cohorts.append(c)
 
     def _advance(self, c: _Cohort, a_all, obs, reward, term, trunc) -> None:
         st = c.stepper
         a = np.where(c.active, a_all[c.members], 0.0)
         nxt = st.advance(a * self.action_scale_rad)
         c.tick += 1
-        bank = st.rec_bank[st.k]
-        cmd = st.setup.bank_cmd[st.k]
+        k = int(st.episode_step[0])
+        bank = st.bank.copy()
+        cmd = st.setup.bank_cmd[k]
         if c.cmd_scale is not None:
             cmd = cmd * c.cmd_scale
         r = step_reward(bank, cmd, a, c.prev, self.bank_limit_rad)
@@ -201,7 +193,7 @@ class RollHoldVectorEnv(gym.vector.VectorEnv):
         r = np.where(t_end, r - RewardWeights.termination * (self.n_ticks - c.tick), r)
         if nxt is None:
             last = c.last
-            t = st.k * st.setup.dt
+            t = k * st.setup.dt
             nxt = Observation(
                 t=t,
                 dt=last.dt,

@@ -1,0 +1,127 @@
+"""PPO and SAC through stable-baselines3 (the optional ``rl`` extra), exported to numpy.
+
+Training uses the scalar environment (:class:`~rollrig.sim.envs.RollHoldEnv`)
+in SB3's own vector wrapper, CPU only. The trained actor is exported to the
+same numpy network as ARS policies, so evaluating it needs no torch:
+
+* PPO: ``mlp_extractor.policy_net`` (``tanh`` layers) then ``action_net``;
+  the deterministic action is the Gaussian's mean, clipped to ``[−1, 1]``
+  (what SB3's ``predict`` does);
+* SAC: ``actor.latent_pi`` (``tanh`` layers, set at construction so the
+  export is exact) then ``actor.mu``, squashed by ``tanh``.
+
+References: Schulman et al., "Proximal Policy Optimization Algorithms"
+(2017); Haarnoja et al., "Soft Actor-Critic" (ICML 2018); Raffin et al.,
+"Stable-Baselines3: Reliable Reinforcement Learning Implementations" (JMLR 2021).
+"""
+
+from __future__ import annotations
+
+import time
+
+import numpy as np
+from rollrig.controllers.policy import ObservationLayout, PolicyNet
+
+from ..errors import UserInputError
+from ..scenario import Scenario
+from .session import TrainResult
+
+__all__ = ["train_sb3_policy", "export_policy", "make_model"]
+
+RL_HINT = "pip install -e '.[rl]' (stable-baselines3 with a CPU-only torch)"
+
+
+def _import():
+    try:
+        import stable_baselines3
+        import torch
+    except ImportError:
+        raise UserInputError(f"--algo ppo/sac needs the optional rl extra: {RL_HINT}") from None
+    return stable_baselines3, torch
+
+
+def make_model(env, algo: str, hidden: tuple[int, ...], seed: int, n_steps: int = 1024):
+    """An SB3 PPO or SAC model with ``tanh`` hidden layers on the CPU."""
+    sb3, torch = _import()
+    torch.set_num_threads(1)
+    kwargs = dict(policy_kwargs=dict(net_arch=list(hidden), activation_fn=torch.nn.Tanh), seed=seed)
+    if algo == "ppo":
+        return sb3.PPO("MlpPolicy", env, n_steps=n_steps, batch_size=64, device="cpu", verbose=0, **kwargs)
+    return sb3.SAC("MlpPolicy", env, learning_starts=200, device="cpu", verbose=0, **kwargs)
+
+
+def _linears(seq) -> list:
+    import torch
+
+    return [m for m in seq if isinstance(m, torch.nn.Linear)]
+
+
+def export_policy(model, algo: str) -> PolicyNet:
+    """The trained actor as a numpy :class:`PolicyNet` (weights copied as float64)."""
+    if algo == "ppo":
+        layers = [*_linears(model.policy.mlp_extractor.policy_net), model.policy.action_net]
+        output = "clip"
+    else:
+        layers = [*_linears(model.actor.latent_pi), model.actor.mu]
+        output = "tanh"
+    ws = [lin.weight.detach().cpu().numpy().astype(np.float64) for lin in layers]
+    bs = [lin.bias.detach().cpu().numpy().astype(np.float64) for lin in layers]
+    n = ws[0].shape[1]
+    return PolicyNet(ws, bs, np.zeros(n), np.ones(n), output)
+
+
+def train_sb3_policy(
+    sc: Scenario,
+    algo: str,
+    *,
+    steps: int,
+    seed: int,
+    ranges: dict,
+    hidden: tuple[int, ...],
+    history: int,
+    eval_runs: int | None = None,
+) -> tuple[TrainResult, ObservationLayout, dict]:
+    """Train with SB3; Ctrl-C stops early and marks the result interrupted."""
+    sb3, _ = _import()
+    from stable_baselines3.common.callbacks import BaseCallback
+    from stable_baselines3.common.env_util import make_vec_env
+
+    from ..envs import RollHoldEnv
+    from .evaluate import judge_policy, pass_rate
+
+    env = make_vec_env(
+        RollHoldEnv, n_envs=1, seed=seed, env_kwargs=dict(scenario=sc, randomize=ranges, history=history)
+    )
+    model = make_model(env, algo, hidden, seed, n_steps=min(1024, max(64, steps)))
+    layout = env.get_attr("layout")[0]
+    history_rows: list[dict] = []
+    t0 = time.process_time()
+
+    class Record(BaseCallback):
+        def _on_step(self) -> bool:
+            return True
+
+        def _on_rollout_end(self) -> None:
+            eps = [e["r"] for e in self.model.ep_info_buffer]
+            if eps:
+                history_rows.append(
+                    {
+                        "iteration": int(self.num_timesteps),
+                        "mean_return": float(np.mean(eps)),
+                        "cpu_s": time.process_time() - t0,
+                    }
+                )
+
+    interrupted = False
+    try:
+        model.learn(total_timesteps=steps, callback=Record())
+    except KeyboardInterrupt:
+        interrupted = True
+    net = export_policy(model, algo)
+    if history_rows:
+        history_rows[-1]["pass_rate"] = pass_rate(judge_policy(sc, net, layout, eval_runs))
+    result = TrainResult(
+        net=net, history=history_rows, interrupted=interrupted, cpu_s=time.process_time() - t0
+    )
+    extra = {"steps": int(model.num_timesteps), "hidden": list(hidden), "sb3_version": sb3.__version__}
+    return result, layout, extra
