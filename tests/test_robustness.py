@@ -200,7 +200,10 @@ def test_stop_signals_write_nothing(tmp_path, sig, code):
     time.sleep(0.5)
     p.send_signal(sig)
     stdout, stderr = p.communicate(timeout=60)
-    assert p.returncode == code, stderr
+    # A Ctrl-C that lands while Python is still importing can end the process by
+    # SIGINT itself (status -2), which a shell reports as 130 all the same.
+    allowed = (code, -sig) if sig == signal.SIGINT else (code,)
+    assert p.returncode in allowed, stderr
     assert stderr.count("\n") == 1 and signal.Signals(sig).name in stderr or sig == signal.SIGINT, stderr
     assert "Traceback" not in stderr
     assert not out.exists()
