@@ -71,13 +71,43 @@ class PIDConfig:
     fade_s: float = 1.0
 
 
+_PER_RUN = (
+    "kp",
+    "ki_per_s",
+    "kd_s",
+    "derivative_filter_hz",
+    "output_limit_rad",
+    "integrator_limit_rad",
+    "stale_after_s",
+    "hold_s",
+    "fade_s",
+)
+
+
 class PIDController:
-    """Batch PID bank-hold controller (see module docstring for the law)."""
+    """Batch PID bank-hold controller (see module docstring for the law).
+
+    Every numeric field of :class:`PIDConfig` may be a float or a ``(batch,)``
+    array (one value per run); :meth:`reset` turns them into contiguous
+    ``(batch,)`` arrays so a run alone and a run in a batch use the same
+    arithmetic. The controller owns its state; :meth:`reset_rows` restarts
+    some runs of the batch.
+    """
 
     def __init__(self, cfg: PIDConfig) -> None:
         self.cfg = cfg
+        if cfg.derivative_source not in ("measurement", "gyro"):
+            raise ValueError(f"derivative_source = {cfg.derivative_source!r}; allowed: 'measurement', 'gyro'")
 
     def reset(self, batch: int) -> None:
+        c = self.cfg
+        self.batch = batch
+        self.p = {}
+        for name in _PER_RUN:
+            v = np.asarray(getattr(c, name), dtype=float)
+            self.p[name] = np.full(batch, float(v)) if v.ndim == 0 else np.array(np.broadcast_to(v, (batch,)))
+        self._alpha_dt = None
+        self._use_gyro = c.derivative_source == "gyro"
         self.integral = np.zeros(batch)
         self.rate_f = np.zeros(batch)
         self.prev_bank = np.zeros(batch)
@@ -85,46 +115,68 @@ class PIDController:
         self.held = np.zeros(batch)
         self.output = np.zeros(batch)
 
+    def reset_rows(self, rows) -> None:
+        """Restart the runs ``rows`` of the batch (as :meth:`reset` would leave them)."""
+        for name, value in (
+            ("integral", 0.0),
+            ("rate_f", 0.0),
+            ("prev_bank", 0.0),
+            ("prev_capture", np.nan),
+            ("held", 0.0),
+            ("output", 0.0),
+        ):
+            arr = getattr(self, name).copy()
+            arr[rows] = value
+            setattr(self, name, arr)
+
     def step(self, obs: Observation) -> np.ndarray:
-        c = self.cfg
+        p = self.p
         dt = obs.dt
+        if self._alpha_dt != dt:
+            self._alpha = -np.expm1(-2.0 * np.pi * p["derivative_filter_hz"] * dt)
+            self._alpha_dt = dt
+        alpha = self._alpha
         bank = obs.bank
-        fresh = obs.age <= c.stale_after_s
-        capture = obs.t - obs.age
-        alpha = -math.expm1(-2.0 * math.pi * c.derivative_filter_hz * dt)
+        fresh = obs.age <= p["stale_after_s"]
 
         # bank rate
-        if c.derivative_source == "gyro" and obs.rate is not None:
+        if self._use_gyro and obs.rate is not None:
             rate = obs.rate
         else:
-            new = fresh & ((capture > self.prev_capture) | np.isnan(self.prev_capture))
-            gap = np.where(new, capture - self.prev_capture, 1.0)
-            ok = new & np.isfinite(gap) & (gap > 0)
-            rate = np.where(ok, (bank - self.prev_bank) / np.where(ok, gap, 1.0), self.rate_f)
+            capture = obs.t - obs.age
+            prev = self.prev_capture
+            first = np.isnan(prev)
+            new = fresh & ((capture > prev) | first)
+            gap = capture - prev
+            ok = new & ~first & (gap > 0) & np.isfinite(gap)
+            with np.errstate(invalid="ignore", divide="ignore"):
+                rate = np.where(ok, (bank - self.prev_bank) / gap, self.rate_f)
             self.prev_bank = np.where(new, bank, self.prev_bank)
             # after a loss, restart differencing from the first fresh reading
-            self.prev_capture = np.where(new, capture, np.where(fresh, self.prev_capture, np.nan))
+            self.prev_capture = np.where(new, capture, np.where(fresh, prev, np.nan))
         self.rate_f = np.where(fresh, self.rate_f + alpha * (rate - self.rate_f), self.rate_f)
 
         err = obs.bank_cmd - bank
-        u_raw = c.kp * err + self.integral - c.kd_s * self.rate_f
-        lim = c.output_limit_rad
-        u = np.clip(u_raw, -lim, lim)
+        u_raw = p["kp"] * err + self.integral - p["kd_s"] * self.rate_f
+        lim = p["output_limit_rad"]
+        u = np.minimum(np.maximum(u_raw, -lim), lim)
         pushing = ((u_raw >= lim) & (err > 0)) | ((u_raw <= -lim) & (err < 0))
         grow = fresh & ~pushing
-        self.integral = np.where(
-            grow,
-            np.clip(self.integral + c.ki_per_s * err * dt, -c.integrator_limit_rad, c.integrator_limit_rad),
-            self.integral,
-        )
+        ilim = p["integrator_limit_rad"]
+        grown = np.minimum(np.maximum(self.integral + p["ki_per_s"] * err * dt, -ilim), ilim)
+        self.integral = np.where(grow, grown, self.integral)
 
         # signal lost: hold, then fade to neutral
-        lost_for = np.where(fresh, 0.0, obs.age - c.stale_after_s)
+        if fresh.all():
+            self.held = u
+            self.output = u
+            return u
+        lost_for = np.where(fresh, 0.0, obs.age - p["stale_after_s"])
         self.held = np.where(fresh, u, self.held)
-        if c.fade_s > 0:
-            fade = np.clip(1.0 - (lost_for - c.hold_s) / c.fade_s, 0.0, 1.0)
-        else:
-            fade = (lost_for <= c.hold_s).astype(float)
+        fade_s, hold_s = p["fade_s"], p["hold_s"]
+        with np.errstate(invalid="ignore", divide="ignore"):
+            ramp = np.minimum(np.maximum(1.0 - (lost_for - hold_s) / fade_s, 0.0), 1.0)
+        fade = np.where(fade_s > 0, ramp, (lost_for <= hold_s).astype(float))
         fade = np.where(np.isfinite(obs.age), fade, 0.0)
         self.output = np.where(fresh, u, self.held * fade)
         return self.output

@@ -33,6 +33,7 @@ is invalid, the last valid one is kept and its age grows (see
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
@@ -54,6 +55,7 @@ __all__ = [
     "read_frames",
     "quantize",
     "CameraReader",
+    "take_rows",
 ]
 
 RngFor = Callable[[str], Sequence[np.random.Generator]]
@@ -104,8 +106,9 @@ class BurstConfig:
 class CameraConfig:
     """Camera-reader parameters (SI units).
 
-    ``latency_s`` and ``dropout_prob`` (and ``bursts.loss_rate``) accept a
-    float or a ``(batch,)`` array (one value per run) when built in code.
+    Every numeric parameter except ``frame_rate_hz`` accepts a float or a
+    ``(batch,)`` array (one value per run) when built in code (see
+    ``rollrig.sim.params`` for the rule and what is shared).
 
     Parameters
     ----------
@@ -183,17 +186,42 @@ class CameraConfig:
             raise ValueError("dropout_prob: allowed: 0 ≤ dropout_prob < 1")
 
 
-def _per_run(value, batch: int, name: str) -> np.ndarray | float:
+def _at(value, rows=None):
+    """A scalar or per-run parameter at batch rows ``rows`` (a float, or an array shaped like ``rows``)."""
     a = np.asarray(value, dtype=float)
     if a.ndim == 0:
         return float(a)
-    if a.shape != (batch,):
-        raise ValueError(f"{name} has shape {a.shape}; allowed: a float or shape ({batch},)")
-    return a
+    return a if rows is None else a[rows]
+
+
+def _c(value):
+    """A scalar or per-run parameter as a float or a ``(batch, 1)`` column."""
+    a = np.asarray(value, dtype=float)
+    return float(a) if a.ndim == 0 else a[:, None]
 
 
 def _any_positive(x) -> bool:
     return bool(np.any(np.asarray(x) > 0))
+
+
+def take_rows(cfg: CameraConfig, rows: np.ndarray) -> CameraConfig:
+    """The config restricted to batch rows ``rows`` (per-run arrays sliced, scalars kept)."""
+
+    def cut(obj):
+        changes = {}
+        for f in dataclasses.fields(obj):
+            v = getattr(obj, f.name)
+            if isinstance(v, np.ndarray) and v.ndim == 1:
+                changes[f.name] = np.ascontiguousarray(v[rows])
+        new = object.__new__(type(obj))
+        for f in dataclasses.fields(obj):
+            object.__setattr__(new, f.name, changes.get(f.name, getattr(obj, f.name)))
+        return new
+
+    out = cut(cfg)
+    if cfg.bursts is not None:
+        object.__setattr__(out, "bursts", cut(cfg.bursts))
+    return out
 
 
 # ----------------------------------------------------------- random draws
@@ -201,7 +229,8 @@ def frame_draws(cfg: CameraConfig, n_frames: int, rng_for: RngFor) -> dict[str, 
     """Random draws for every frame of every run, one stream per stage.
 
     Returns arrays of shape ``(batch, n_frames)`` (``outliers``:
-    ``(batch, 2, n_frames)``); only stages that are switched on draw.
+    ``(batch, 2, n_frames)``); only stages that are switched on (in any run)
+    draw.
     """
 
     def stack(stream: str, draw) -> np.ndarray:
@@ -213,17 +242,17 @@ def frame_draws(cfg: CameraConfig, n_frames: int, rng_for: RngFor) -> dict[str, 
 
     n = n_frames
     draws: dict[str, np.ndarray] = {}
-    if cfg.noise_rad > 0:
+    if _any_positive(cfg.noise_rad):
         draws["noise"] = stack("camera.noise", lambda g, o: g.standard_normal(out=o))
     if _any_positive(cfg.dropout_prob):
         draws["dropout"] = stack("camera.dropout", lambda g, o: g.random(out=o))
-    if cfg.jitter_s > 0:
+    if _any_positive(cfg.jitter_s):
         draws["jitter"] = stack("camera.jitter", lambda g, o: g.standard_normal(out=o))
-    if cfg.latency_jitter_s > 0:
+    if _any_positive(cfg.latency_jitter_s):
         draws["latency"] = stack("camera.latency", lambda g, o: g.standard_exponential(out=o))
-    if cfg.wander_rad > 0:
+    if _any_positive(cfg.wander_rad):
         draws["wander"] = stack("camera.wander", lambda g, o: g.standard_normal(out=o))
-    if cfg.outlier_prob > 0 and cfg.outlier_rad > 0:
+    if _any_positive(cfg.outlier_prob) and _any_positive(cfg.outlier_rad):
         u = np.stack([g.random((2, n)) for g in rng_for("camera.outliers")])
         draws["outliers"] = u
     if cfg.bursts is not None and _any_positive(cfg.bursts.loss_rate):
@@ -234,8 +263,8 @@ def frame_draws(cfg: CameraConfig, n_frames: int, rng_for: RngFor) -> dict[str, 
 def frame_offsets(cfg: CameraConfig, draws: dict[str, np.ndarray], batch: int, n: int) -> np.ndarray | float:
     """Bank-independent error of every frame: bias + noise + wander + wild readings.
 
-    Returns ``(batch, n)`` rad, or the bias alone (a float) when no random
-    stage is on.
+    Returns ``(batch, n)`` rad, or the bias alone (a float or ``(batch, 1)``)
+    when no random stage is on. Parameters may be per run.
     """
     parts = []
     if "noise" in draws:
@@ -248,8 +277,8 @@ def frame_offsets(cfg: CameraConfig, draws: dict[str, np.ndarray], batch: int, n
         o = draws["outliers"]
         parts.append(stages.outlier_offsets(o[:, 0], o[:, 1], cfg.outlier_prob, cfg.outlier_rad))
     if not parts:
-        return float(cfg.bias_rad)
-    total = parts[0] + cfg.bias_rad
+        return _c(cfg.bias_rad)
+    total = parts[0] + _c(cfg.bias_rad)
     for p in parts[1:]:
         total += p
     return total
@@ -259,144 +288,191 @@ def frame_losses(cfg: CameraConfig, draws: dict[str, np.ndarray], batch: int) ->
     """Lost-frame mask ``(batch, n)`` from independent and bursty losses, or None."""
     lost = None
     if "dropout" in draws:
-        lost = stages.independent_losses(draws["dropout"], _per_run(cfg.dropout_prob, batch, "dropout_prob"))
+        lost = stages.independent_losses(draws["dropout"], cfg.dropout_prob)
     if "bursts" in draws:
-        b = stages.burst_losses(
-            draws["bursts"],
-            _per_run(cfg.bursts.loss_rate, batch, "bursts.loss_rate"),
-            cfg.bursts.mean_burst_frames,
-        )
+        b = stages.burst_losses(draws["bursts"], cfg.bursts.loss_rate, cfg.bursts.mean_burst_frames)
         lost = b if lost is None else lost | b
     return lost
 
 
 def read_frames(
-    bank: np.ndarray, cfg: CameraConfig, offset, centres: np.ndarray | None = None
+    bank: np.ndarray, cfg: CameraConfig, offset, centres: np.ndarray | None = None, rows=None
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray | None]:
     """Readings, in-range flags and confidence for frames whose (exposed) bank is ``bank``.
 
     ``offset`` is the frames' bank-independent error (see :func:`frame_offsets`).
-    Losses are applied by the caller. Returns ``(reading, in_range,
-    confidence)``; confidence is ``None`` without a classifier.
+    Per-run parameters are taken at the batch rows ``rows`` (an index array
+    that broadcasts against ``bank``). Losses are applied by the caller.
+    Returns ``(reading, in_range, confidence)``; confidence is ``None``
+    without a classifier.
     """
-    value = bank * cfg.scale + offset if cfg.scale != 1.0 else bank + offset
+    value = bank * _at(cfg.scale, rows) + offset
     conf = None
     c = cfg.classifier
     if c is not None:
         if centres is None:
-            centres = stages.class_centres(c.class_width_rad, cfg.range_rad)
+            centres = stages.class_centres(c.class_width_rad, float(np.max(cfg.range_rad)))
         value, conf = stages.classify(value, centres, c.class_width_rad, c.sharpness, c.decode)
-    value = quantize(value, cfg.quantization_rad)
-    value, ok = stages.limit_range(value, cfg.range_rad, cfg.beyond_range)
+    value = quantize(value, _at(cfg.quantization_rad, rows))
+    value, ok = stages.limit_range(value, _at(cfg.range_rad, rows), cfg.beyond_range)
     return value, ok, conf
 
 
 # ------------------------------------------------------------- runtime shell
 class CameraReader:
-    """The stateful shell the stepping core drives.
+    """The camera's mutable state while a batch runs; the stepping core owns one per batch.
 
-    Call :meth:`reset` once per batch, handing it the driver's
-    ``(n_steps + 1, batch)`` record of true bank (row ``k`` written by the end
-    of step ``k``), then :meth:`read` at every controller tick. Nothing runs
-    per base step: at a tick, the newest delivered frame's reading is
-    computed from the bank recorded at its capture step (a frame is delivered
-    after it is captured, so that row is always written). The stages are pure
-    functions of that bank and the frame's up-front draws, so evaluating a
-    frame late gives the same reading as evaluating it at capture; exposure
-    averaging reads the rows before the capture step.
+    Built for a batch, then :meth:`start` (re)starts any set of its runs at
+    their own time zero: their frame timing, random draws and reader state
+    are made afresh from the generators given, so a restarted run reads
+    exactly as a fresh run with those generators would. The core hands the
+    reader its ``(n_steps + 1, batch)`` record of true bank indexed by each
+    run's local step (:attr:`history`) and calls :meth:`read` once per
+    controller tick. Nothing runs per base step: at a tick, the newest
+    delivered frame's reading is computed from the bank recorded at its
+    capture step (a frame is delivered after it is captured, so that row is
+    always written). The stages are pure functions of that bank and the
+    frame's up-front draws, so evaluating a frame late gives the same
+    reading as evaluating it at capture; exposure averaging reads the rows
+    before the capture step.
+
+    Every numeric parameter of ``cfg`` may be a ``(batch,)`` array (one value
+    per run); ``frame_rate_hz``, ``beyond_range`` and the classifier are
+    shared (with a classifier, ``range_rad`` is shared too).
     """
 
-    def __init__(self, cfg: CameraConfig, dt: float) -> None:
+    def __init__(
+        self, cfg: CameraConfig, dt: float, n_steps: int, tick_steps: np.ndarray, batch: int
+    ) -> None:
         self.cfg = cfg
         self.dt = float(dt)
-
-    def reset(
-        self, n_steps: int, tick_steps: np.ndarray, batch: int, rng_for: RngFor, history: np.ndarray
-    ) -> None:
-        cfg = self.cfg
-        self.history = history
+        self.n_steps = int(n_steps)
+        self.tick_steps = np.asarray(tick_steps)
+        self.batch = batch
         n = n_frames_for(cfg.frame_rate_hz, self.dt, n_steps)
-        draws = frame_draws(cfg, n, rng_for)
-        latency = _per_run(cfg.latency_s, batch, "latency_s")
-        self.plan = plan_frames(
-            cfg.frame_rate_hz,
-            self.dt,
-            n_steps,
-            batch,
-            latency_s=latency,
-            jitter_eps=draws.get("jitter"),
-            jitter_s=cfg.jitter_s,
-            latency_extra_s=None if "latency" not in draws else cfg.latency_jitter_s * draws["latency"],
-        )
-        self.n_frames, self.batch = n, batch
-        self._latest = self.plan.latest_delivered(np.asarray(tick_steps))
+        self.n_frames = n
+        for obj in (cfg, cfg.bursts):
+            for f in dataclasses.fields(obj) if obj is not None else ():
+                v = getattr(obj, f.name)
+                if np.ndim(v) > 1 or (np.ndim(v) == 1 and len(v) != batch):
+                    raise ValueError(
+                        f"{f.name}: allowed: a number or one value per run, shape ({batch},); "
+                        f"got shape {np.shape(v)}"
+                    )
+        if cfg.classifier is not None and np.ndim(cfg.range_rad) and np.ptp(cfg.range_rad) > 0:
+            raise ValueError("range_rad: allowed: one value for the whole batch when a classifier is set")
         # frame-major (n + 1, batch) arrays; the spare last row (index -1)
         # stands for "no frame yet" and is never valid
-        off = frame_offsets(cfg, draws, batch, n)
-        if np.isscalar(off):
-            self._offset = off
-        else:
-            self._offset = np.zeros((n + 1, batch))
-            self._offset[:n] = np.asarray(off).T
-        lost = frame_losses(cfg, draws, batch)
-        self._kept = np.ones((n + 1, batch), dtype=bool)
-        if lost is not None:
-            self._kept[:n] = ~lost.T
-        self._kept[n] = False
+        self._offset = np.zeros((n + 1, batch))
+        self._kept = np.zeros((n + 1, batch), dtype=bool)
         self._cap_step = np.zeros((n + 1, batch), dtype=np.int64)
-        self._cap_step[:n] = self.plan.capture_step.T
+        self.capture_time = np.full((n + 1, batch), -np.inf)
+        self.capture_step = np.zeros((batch, n), dtype=np.int64)
+        self.deliver_step = np.zeros((batch, n), dtype=np.int64)
+        self._latest = np.full((self.tick_steps.size, batch), -1, dtype=np.int64)
         self._centres = (
             None
             if cfg.classifier is None
-            else stages.class_centres(cfg.classifier.class_width_rad, cfg.range_rad)
+            else stages.class_centres(cfg.classifier.class_width_rad, float(np.max(cfg.range_rad)))
         )
-        self._weights = stages.exposure_weights(cfg.exposure_s, self.dt)
-        self.capture_time = np.full((n + 1, batch), -np.inf)
-        self.capture_time[:n] = self.plan.capture_step.T * self.dt
-        self._last_value = np.zeros(batch)
-        self._last_time = np.full(batch, -np.inf)
+        # exposure weights per run, oldest first, padded with zeros at the old end
+        exp_s = np.broadcast_to(np.asarray(cfg.exposure_s, dtype=float), (batch,))
+        ws = [stages.exposure_weights(float(e), self.dt) for e in exp_s]
+        width = max(w.size for w in ws)
+        self._weights = np.zeros((width, batch))
+        for r, w in enumerate(ws):
+            self._weights[width - w.size :, r] = w
+        self.last_value = np.zeros(batch)
+        self.last_time = np.full(batch, -np.inf)
         self._rows = np.arange(batch)
-        self._image = None if cfg.image is None else cfg.image.start(n, batch, rng_for)
-        self._tick = 0
-        self._prev_idx = None
+        self._prev_idx = np.full(batch, -2, dtype=np.int64)  # -2: nothing evaluated yet
+        self._prev_value = np.zeros(batch)
+        self._prev_valid = np.zeros(batch, dtype=bool)
+        self._image = None if cfg.image is None else cfg.image.start(n, batch)
+        self.history: np.ndarray | None = None
+
+    def start(self, rows: np.ndarray, rng_for: RngFor) -> None:
+        """(Re)start the runs ``rows``: new timing plan and draws from ``rng_for`` (one generator per row)."""
+        rows = np.asarray(rows, dtype=np.int64)
+        m = rows.size
+        if m == 0:
+            return
+        cfg = take_rows(self.cfg, rows)
+        n = self.n_frames
+        draws = frame_draws(cfg, n, rng_for)
+        plan = plan_frames(
+            cfg.frame_rate_hz,
+            self.dt,
+            self.n_steps,
+            m,
+            latency_s=cfg.latency_s,
+            jitter_eps=draws.get("jitter"),
+            jitter_s=cfg.jitter_s,
+            latency_extra_s=None if "latency" not in draws else _c(cfg.latency_jitter_s) * draws["latency"],
+        )
+        self.capture_step[rows] = plan.capture_step
+        self.deliver_step[rows] = plan.deliver_step
+        self._latest[:, rows] = plan.latest_delivered(self.tick_steps)
+        off = frame_offsets(cfg, draws, m, n)
+        self._offset[:n, rows] = np.broadcast_to(np.asarray(off), (m, n)).T
+        lost = frame_losses(cfg, draws, m)
+        self._kept[:n, rows] = True if lost is None else ~lost.T
+        self._cap_step[:n, rows] = plan.capture_step.T
+        self.capture_time[:n, rows] = plan.capture_step.T * self.dt
+        self.last_value[rows] = 0.0
+        self.last_time[rows] = -np.inf
+        self._prev_idx[rows] = -2
+        if self._image is not None:
+            self._image.restart(rows, rng_for)
+
+    @property
+    def plan(self) -> FramePlan:
+        """The batch's current timing plan (capture and delivery steps, ``(batch, n_frames)``)."""
+        return FramePlan(capture_step=self.capture_step, deliver_step=self.deliver_step)
 
     def _evaluate(self, frames, rows):
         """Reading, validity and confidence of frames, from the bank record."""
         w = self._weights
         cap = self._cap_step[frames, rows]
-        if w.size == 1:
+        if w.shape[0] == 1:
             bank = self.history[cap, rows]
-        else:  # one gather per base step of the exposure (few), oldest first
-            bank = w[-1] * self.history[cap, rows]
-            for i in range(1, w.size):
-                bank += w[-1 - i] * self.history[np.maximum(cap - i, 0), rows]
+        else:  # one gather per base step of the exposure (few), newest first
+            bank = w[-1, rows] * self.history[cap, rows]
+            for i in range(1, w.shape[0]):
+                bank += w[-1 - i, rows] * self.history[np.maximum(cap - i, 0), rows]
         if self._image is not None:  # the reader's reading of the rendered picture replaces the bank
             bank, seen = self._image.read(bank, frames, rows)
-        off = self._offset if np.isscalar(self._offset) else self._offset[frames, rows]
-        value, ok, conf = read_frames(bank, self.cfg, off, self._centres)
+        value, ok, conf = read_frames(bank, self.cfg, self._offset[frames, rows], self._centres, rows)
         ok &= self._kept[frames, rows]
         if self._image is not None:
             ok &= seen
         return value, ok, conf
 
-    def read(self, t: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-        """(bank, valid, age) at the next controller tick, time ``t``."""
-        idx = self._latest[self._tick]
-        self._tick += 1
+    def read(self, tick, t) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """(bank, valid, age) at a controller tick; updates the reader's state.
+
+        ``tick`` is the local tick index and ``t`` the local time (s), each an
+        int/float (every run on one clock) or ``(batch,)`` (each run's own).
+        """
+        if np.ndim(tick) == 0:
+            idx = self._latest[tick].copy()  # kept as _prev_idx, which start() edits
+        else:
+            idx = self._latest[np.minimum(tick, self._latest.shape[0] - 1), self._rows]
         rows = self._rows
         prev = self._prev_idx
-        if prev is None:
-            value, valid, _ = self._evaluate(idx, rows)
-        elif np.array_equal(idx, prev):  # same frames as the last tick
+        if np.array_equal(idx, prev):  # same frames as the last tick
             value, valid = self._prev_value, self._prev_valid
         else:  # evaluate only the runs whose newest frame changed
             new = np.flatnonzero(idx != prev)
             value, valid = self._prev_value.copy(), self._prev_valid.copy()
-            value[new], valid[new], _ = self._evaluate(idx[new], new)
+            if new.size == rows.size:
+                value, valid, _ = self._evaluate(idx, rows)
+            else:
+                value[new], valid[new], _ = self._evaluate(idx[new], new)
         self._prev_idx, self._prev_value, self._prev_valid = idx, value, valid
-        self._last_value = np.where(valid, value, self._last_value)
-        self._last_time = np.where(valid, self.capture_time[idx, rows], self._last_time)
-        return self._last_value, valid, t - self._last_time
+        self.last_value = np.where(valid, value, self.last_value)
+        self.last_time = np.where(valid, self.capture_time[idx, rows], self.last_time)
+        return self.last_value, valid, t - self.last_time
 
     def frame_readings(self) -> tuple[np.ndarray, np.ndarray, np.ndarray | None]:
         """Every frame's reading, validity and confidence, ``(batch, n_frames)``.

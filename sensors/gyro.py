@@ -45,8 +45,30 @@ class GyroConfig:
     bias_drift_time_s: float = 100.0
 
 
-def gyro_errors(cfg: GyroConfig, n: int, rng_for: Callable[[str], Sequence[np.random.Generator]]):
-    """Per-sample error ``(batch, n)`` rad/s (bias + drift + noise), or the bias alone."""
+def _col(v, rows: np.ndarray | None = None):
+    """A scalar or per-run parameter, restricted to ``rows``, as a ``(m, 1)`` column (or a float)."""
+    a = np.asarray(v, dtype=float)
+    if a.ndim == 0:
+        return float(a)
+    return np.ascontiguousarray(a if rows is None else a[rows])[:, None]
+
+
+def _sel(v, rows: np.ndarray | None):
+    a = np.asarray(v, dtype=float)
+    return a if a.ndim == 0 or rows is None else np.ascontiguousarray(a[rows])
+
+
+def gyro_errors(
+    cfg: GyroConfig,
+    n: int,
+    rng_for: Callable[[str], Sequence[np.random.Generator]],
+    rows: np.ndarray | None = None,
+):
+    """Per-sample error ``(batch, n)`` rad/s (bias + drift + noise), or the bias alone.
+
+    Parameters may be per run (``(batch,)``); ``rows`` selects the runs that
+    ``rng_for`` gives generators for (all when ``None``).
+    """
 
     def normals(stream: str) -> np.ndarray:
         gens = rng_for(stream)
@@ -56,41 +78,62 @@ def gyro_errors(cfg: GyroConfig, n: int, rng_for: Callable[[str], Sequence[np.ra
         return out
 
     total = None
-    if cfg.noise_rad_s > 0:
-        total = cfg.noise_rad_s * normals("gyro.noise")
-    if cfg.bias_drift_rad_s > 0:
+    if np.any(np.asarray(cfg.noise_rad_s) > 0):
+        total = _col(cfg.noise_rad_s, rows) * normals("gyro.noise")
+    if np.any(np.asarray(cfg.bias_drift_rad_s) > 0):
         eps = normals("gyro.drift")
-        drift = gauss_markov(eps, cfg.bias_drift_rad_s, cfg.bias_drift_time_s, 1.0 / cfg.rate_hz)
+        drift = gauss_markov(
+            eps, _sel(cfg.bias_drift_rad_s, rows), _sel(cfg.bias_drift_time_s, rows), 1.0 / cfg.rate_hz
+        )
         total = drift if total is None else total + drift
+    bias = _col(cfg.bias_rad_s, rows)
     if total is None:
-        return float(cfg.bias_rad_s)
-    return total + cfg.bias_rad_s
+        return bias if np.ndim(bias) == 0 else np.broadcast_to(bias, (bias.shape[0], n)).copy()
+    return total + bias
 
 
 class RateGyro:
-    """Samples roll rate at ``rate_hz`` on the base grid; holds between samples."""
+    """Samples roll rate at ``rate_hz`` on the base grid; holds between samples.
 
-    def __init__(self, cfg: GyroConfig, dt: float) -> None:
+    The gyro's mutable state (its current value and per-sample errors) lives
+    here; the stepping core owns one per batch. Each run has its own clock
+    (local step), so a run restarted with :meth:`start` samples as a fresh
+    run would.
+    """
+
+    def __init__(self, cfg: GyroConfig, dt: float, n_steps: int, batch: int) -> None:
         self.cfg = cfg
         self.dt = float(dt)
-
-    def reset(
-        self, n_steps: int, batch: int, rng_for: Callable[[str], Sequence[np.random.Generator]]
-    ) -> None:
-        period = 1.0 / self.cfg.rate_hz
+        period = 1.0 / cfg.rate_hz
         n = int(math.floor(n_steps * self.dt / period + 1e-9)) + 1
         steps = np.rint(np.arange(n) * period / self.dt).astype(np.int64)
-        self.sample_steps = {int(k): j for j, k in enumerate(steps) if k <= n_steps}
-        err = gyro_errors(self.cfg, n, rng_for)
-        self._err = err if np.isscalar(err) else np.ascontiguousarray(np.asarray(err).T)
+        self.n_samples = n
+        self.sample_at = np.full(n_steps + 1, -1, dtype=np.int64)  # sample index due at each local step
+        ok = steps <= n_steps
+        self.sample_at[steps[ok]] = np.arange(n)[ok]
+        self._err = np.zeros((n, batch))
         self.value = np.zeros(batch)
+        self._rows = np.arange(batch)
+
+    def start(self, rows: np.ndarray, rng_for: Callable[[str], Sequence[np.random.Generator]]) -> None:
+        """(Re)start the runs ``rows`` at their local step 0 (``rng_for`` gives their generators)."""
+        rows = np.asarray(rows, dtype=np.int64)
+        err = gyro_errors(self.cfg, self.n_samples, rng_for, rows)
+        self._err[:, rows] = np.asarray(err).T if np.ndim(err) else err
+        self.value[rows] = 0.0
 
     def sample(self, k: int, rate: np.ndarray) -> None:
-        """Take a sample at base step ``k`` if one is due."""
-        j = self.sample_steps.get(k)
-        if j is None:
-            return
-        self.value = rate + (self._err if np.isscalar(self._err) else self._err[j])
+        """Take a sample at local step ``k`` (every run on the same clock) if one is due."""
+        j = self.sample_at[k]
+        if j >= 0:
+            self.value = rate + self._err[j]
+
+    def sample_rows(self, k: np.ndarray, rate: np.ndarray) -> None:
+        """Take the samples due at each run's own local step ``k`` (``(batch,)``)."""
+        j = self.sample_at[np.minimum(k, self.sample_at.size - 1)]
+        due = j >= 0
+        if due.any():
+            self.value = np.where(due, rate + self._err[np.maximum(j, 0), self._rows], self.value)
 
     def read(self) -> np.ndarray:
         return self.value

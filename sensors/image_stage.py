@@ -72,18 +72,18 @@ class ImageStageSpec:
             if kind not in D.KINDS:
                 raise ValueError(f"degradation {kind!r}; allowed: {', '.join(D.KINDS)}")
 
-    def start(self, n_frames: int, batch: int, rng_for: Callable[[str], Sequence[np.random.Generator]]):
+    def start(self, n_frames: int, batch: int):
         """The running stage for one batch (owns the random streams and the frame cache)."""
-        return ImageStage(self, n_frames, batch, rng_for)
+        return ImageStage(self, n_frames, batch)
 
 
 class ImageStage:
     """The stateful half: per-run streams and every frame's reading once read."""
 
-    def __init__(self, spec: ImageStageSpec, n_frames: int, batch: int, rng_for) -> None:
+    def __init__(self, spec: ImageStageSpec, n_frames: int, batch: int) -> None:
         self.spec = spec
         self.instrument = Instrument(spec.size_px, colour=spec.colour)
-        self.gens = list(rng_for("camera.image"))
+        self.gens: list[np.random.Generator | None] = [None] * batch
         order = {k: i for i, k in enumerate(ORDER)}
         self.steps = sorted(
             ((k, np.broadcast_to(np.asarray(s, dtype=float), (batch,))) for k, s in spec.degradations),
@@ -93,6 +93,13 @@ class ImageStage:
         self.valid = np.zeros((n_frames + 1, batch), dtype=bool)
         self.done = np.zeros((n_frames + 1, batch), dtype=bool)
         self.images_read = 0
+
+    def restart(self, rows: np.ndarray, rng_for: Callable[[str], Sequence[np.random.Generator]]) -> None:
+        """(Re)start runs ``rows``: fresh streams (one generator per row) and no frame read yet."""
+        rows = np.asarray(rows, dtype=np.int64)
+        for r, g in zip(rows, rng_for("camera.image"), strict=True):
+            self.gens[r] = g
+        self.done[:, rows] = False
 
     def read(self, bank: np.ndarray, frames: np.ndarray, rows: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Readings (rad) and validity of the frames ``(frames, rows)`` whose true bank is ``bank``."""

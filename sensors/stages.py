@@ -11,7 +11,7 @@ Statistics each stage is built to reproduce (and is tested against):
 * white noise: std ``σ``;
 * first-order Gauss–Markov: stationary std ``σ``, autocorrelation
   ``exp(-|lag|/τ)`` — recursion ``x⁺ = a x + σ √(1−a²) ε``, ``a = exp(−Δt/τ)``
-  (textbook identity, see REFERENCES.md);
+  (textbook identity, see docs/references.md);
 * rounding quantiser of step ``q``: error variance ``q²/12`` on a moving
   signal (Widrow, Kollár & Liu 1996); a fixed bias on a held angle;
 * two-state bursty loss chain: stationary loss rate ``p/(p+r)``, mean burst
@@ -78,7 +78,7 @@ def gauss_markov(eps: np.ndarray, std, tau_s, step_s: float) -> np.ndarray:
     eps : (batch, n) standard normal draws
     std : float or (batch,), same unit as the output
         Stationary standard deviation.
-    tau_s : s
+    tau_s : s, float or (batch,)
         Correlation time (autocorrelation ``exp(-lag/τ)``).
     step_s : s
         Spacing of the sequence's samples.
@@ -86,12 +86,15 @@ def gauss_markov(eps: np.ndarray, std, tau_s, step_s: float) -> np.ndarray:
     Notes
     -----
     ``x₀ = σ ε₀`` and ``x⁺ = a x + σ √(1−a²) ε`` with ``a = exp(−step/τ)``
-    (textbook identity; REFERENCES.md, "Sensor statistics"). The recursion runs
-    along the sample axis, vectorised over runs.
+    (textbook identity; docs/references.md, "Sensor statistics"). The
+    recursion runs along the sample axis, vectorised over runs; a per-run
+    ``τ`` gives each run its own ``a``.
     """
     eps = np.asarray(eps, dtype=float)
-    a = float(np.exp(-step_s / float(tau_s)))
-    x = np.sqrt(1.0 - a * a) * eps
+    tau = np.asarray(tau_s, dtype=float)
+    a = np.exp(-step_s / tau)  # numpy on scalars and arrays alike: one arithmetic for both
+    a_col = a[:, None] if a.ndim == 1 else a
+    x = np.sqrt(1.0 - a_col * a_col) * eps
     if eps.shape[-1] == 0:
         return x
     x[..., 0] = eps[..., 0]  # stationary start
@@ -113,11 +116,20 @@ def outlier_offsets(u_hit: np.ndarray, u_size: np.ndarray, prob, size) -> np.nda
     return np.where(hit, sign * mag * _col(size), 0.0)
 
 
-def quantize(x: np.ndarray, step: float) -> np.ndarray:
-    """Round to the nearest multiple of ``step`` (no-op for ``step <= 0``)."""
-    if step <= 0:
+def quantize(x: np.ndarray, step) -> np.ndarray:
+    """Round to the nearest multiple of ``step`` (no-op where ``step <= 0``).
+
+    ``step`` is a float or an array that broadcasts against ``x`` (per-run values).
+    """
+    s = np.asarray(step, dtype=float)
+    if s.ndim == 0:
+        if s <= 0:
+            return x
+        return np.round(x / s) * s
+    if not np.any(s > 0):
         return x
-    return np.round(x / step) * step
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(s > 0, np.round(x / s) * s, x)
 
 
 def class_centres(width: float, range_: float) -> np.ndarray:
@@ -173,11 +185,14 @@ def classify(
     return (near + (w @ m) / total) * width, 1.0 / total
 
 
-def limit_range(x: np.ndarray, range_: float, mode: str) -> tuple[np.ndarray, np.ndarray]:
+def limit_range(x: np.ndarray, range_, mode: str) -> tuple[np.ndarray, np.ndarray]:
     """Measuring range: ``mode="invalid"`` flags ``|x| > range``; ``"saturate"`` clips.
 
-    Returns ``(reading, in_range)``; with ``saturate`` every reading is valid.
+    ``range_`` is a float or an array that broadcasts against ``x`` (per-run
+    values). Returns ``(reading, in_range)``; with ``saturate`` every reading
+    is valid.
     """
+    range_ = np.asarray(range_, dtype=float)
     if mode == "saturate":
         return np.clip(x, -range_, range_), np.ones(x.shape, dtype=bool)
     return x, np.abs(x) <= range_
@@ -193,7 +208,7 @@ def burst_chain_probs(loss_rate, mean_burst_frames) -> tuple[np.ndarray, np.ndar
 
     ``r = 1/b`` (mean burst length ``b`` frames) and ``p = π r / (1 − π)``
     (stationary loss rate ``π = p/(p+r)``); Gilbert–Elliott model,
-    REFERENCES.md "Sensor statistics". Needs ``p ≤ 1``.
+    docs/references.md "Sensor statistics". Needs ``p ≤ 1``.
     """
     pi = np.asarray(loss_rate, dtype=float)
     b = np.asarray(mean_burst_frames, dtype=float)

@@ -95,7 +95,7 @@ def plan_frames(
         Fixed processing latency.
     jitter_eps : (batch, n_frames) or None
         Standard normal draws for the capture-time jitter.
-    jitter_s : s
+    jitter_s : s, float or (batch,)
         Standard deviation of the capture-time jitter.
     latency_extra_s : (batch, n_frames) s or None
         Random extra latency of each frame.
@@ -110,8 +110,10 @@ def plan_frames(
     n_frames = n_frames_for(frame_rate_hz, dt, n_steps)
     period = 1.0 / frame_rate_hz
     t_nom = np.arange(n_frames) * period
-    if jitter_eps is not None and jitter_s > 0:
-        jit = np.clip(jitter_s * jitter_eps, -0.45 * period, 0.45 * period)
+    js = np.asarray(jitter_s, dtype=float)
+    if jitter_eps is not None and np.any(js > 0):
+        js = js[:, None] if js.ndim == 1 else js  # per run: a column
+        jit = np.clip(js * jitter_eps, -0.45 * period, 0.45 * period)
         t_cap = np.clip(t_nom + jit, 0.0, None)
         cap = np.rint(t_cap / dt).astype(np.int64)
         cap = np.minimum(np.maximum.accumulate(cap, axis=1), n_steps)

@@ -29,12 +29,11 @@ Steady rolling-moment bias and its step are
 from __future__ import annotations
 
 import math
-from collections.abc import Sequence
 from dataclasses import dataclass
 
 import numpy as np
 
-from .disturbance import CHANNELS, N_CHANNELS
+from .disturbance import CHANNELS
 
 __all__ = ["GUST_CHANNELS", "one_minus_cosine", "OneMinusCosineGust"]
 
@@ -71,17 +70,17 @@ def one_minus_cosine(
     return np.where((x >= 0.0) & (x <= 2.0 * length_m), shape, 0.0)
 
 
-@dataclass
+@dataclass(frozen=True)
 class OneMinusCosineGust:
-    """A deterministic 1 − cos gust as a :class:`~sim.disturbance.DisturbanceSource`.
+    """A deterministic 1 − cos gust as a time-signal disturbance source.
 
     Parameters
     ----------
-    onset_s : s
+    onset_s : s, float or (batch,)
         Time at which the aircraft enters the gust (≥ 0).
     length_m : m
         Build-up length d_m, onset to peak (> 0); see the module doc.
-    amplitude : m/s for ``"v_gust"``, rad/s for ``"p_gust"``
+    amplitude : m/s for ``"v_gust"``, rad/s for ``"p_gust"``; float or (batch,)
         Peak value (either sign).
     channel : {"v_gust", "p_gust"}
         Which plant disturbance input it drives.
@@ -91,9 +90,9 @@ class OneMinusCosineGust:
         Hold the peak after d_m (MIL-F-8785C ramp) instead of falling back.
     """
 
-    onset_s: float
+    onset_s: float | np.ndarray
     length_m: float
-    amplitude: float
+    amplitude: float | np.ndarray
     channel: str
     airspeed_mps: float
     hold_after: bool = False
@@ -108,9 +107,10 @@ class OneMinusCosineGust:
             value = getattr(self, name)
             if not (math.isfinite(value) and value > 0.0):
                 raise ValueError(f"OneMinusCosineGust.{name} must be finite and > 0, got {value!r}")
-        if not (math.isfinite(self.onset_s) and self.onset_s >= 0.0):
+        onset = np.asarray(self.onset_s, dtype=float)
+        if not (np.all(np.isfinite(onset)) and np.all(onset >= 0.0)):
             raise ValueError(f"OneMinusCosineGust.onset_s must be finite and >= 0, got {self.onset_s!r}")
-        if not math.isfinite(self.amplitude):
+        if not np.all(np.isfinite(np.asarray(self.amplitude, dtype=float))):
             raise ValueError(f"OneMinusCosineGust.amplitude must be finite, got {self.amplitude!r}")
 
     @property
@@ -119,19 +119,13 @@ class OneMinusCosineGust:
         factor = 1.0 if self.hold_after else 2.0
         return factor * self.length_m / self.airspeed_mps
 
-    def reset(self, dt: float, rngs: Sequence[np.random.Generator]) -> None:
-        """Start a batch (deterministic: ``rngs`` only sets the batch size)."""
-        self._dt = float(dt)
-        self._batch = len(rngs)
+    def values(self, t_s: np.ndarray) -> dict[int, np.ndarray]:
+        """Gust input at each run's times ``t_s`` (s, ``(n, batch)``): ``{channel: (n, batch)}``."""
+        return {CHANNELS.index(self.channel): self.signal(t_s)}
 
-    def values(self, t_s: np.ndarray) -> np.ndarray:
-        """Gust value at times ``t_s`` (s)."""
-        x = self.airspeed_mps * (np.asarray(t_s, dtype=float) - self.onset_s)
-        return one_minus_cosine(x, self.length_m, self.amplitude, hold_after=self.hold_after)
-
-    def block(self, k0: int, n: int) -> np.ndarray:
-        """Inputs for base steps ``k0 .. k0+n-1``, shape ``(n, batch, 4)``."""
-        out = np.zeros((n, self._batch, N_CHANNELS))
-        t = (k0 + np.arange(n)) * self._dt
-        out[:, :, CHANNELS.index(self.channel)] = self.values(t)[:, None]
-        return out
+    def signal(self, t_s: np.ndarray) -> np.ndarray:
+        """Gust value at times ``t_s`` (s); per-run parameters broadcast along the last axis."""
+        x = self.airspeed_mps * (np.asarray(t_s, dtype=float) - np.asarray(self.onset_s, dtype=float))
+        return one_minus_cosine(
+            x, self.length_m, np.asarray(self.amplitude, dtype=float), hold_after=self.hold_after
+        )

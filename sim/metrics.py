@@ -490,7 +490,9 @@ def step_metrics(
     # steady-state error over the last 10 % of the segment
     tail_from = ts[-1] - _SSE_TAIL_FRAC * (ts[-1] - ts[0])
     tail = ts >= tail_from - 1e-12 * max(1.0, abs(ts[-1]))
-    sse = np.abs(np.mean(ys[:, tail] - y1[:, None], axis=1))
+    # (a boolean index along axis 1 returns a column-major copy: make rows contiguous so the
+    # sum runs in the same order for every run whatever the batch size)
+    sse = np.abs(np.mean(np.ascontiguousarray(ys[:, tail]) - y1[:, None], axis=1))
 
     peak = np.max(np.abs(ys), axis=1)
     itae = np.trapezoid((ts - t_step)[None, :] * err, ts, axis=1)
@@ -668,6 +670,16 @@ def safety_metrics(
 
 
 # ----------------------------------------------------------------- evaluate
+def _rows(a: np.ndarray) -> np.ndarray:
+    """Each run's samples contiguous in memory.
+
+    Sums along time then run in the same (pairwise) order for every run,
+    whatever the batch's size or memory layout, so a run's metrics do not
+    depend on the batch or chunk it was simulated in.
+    """
+    return np.ascontiguousarray(a)
+
+
 def evaluate_steps(trace: Trace, spec: MetricSpec) -> list[dict[str, np.ndarray]]:
     """Step metrics of each non-zero step of ``spec``, in order.
 
@@ -679,7 +691,7 @@ def evaluate_steps(trace: Trace, spec: MetricSpec) -> list[dict[str, np.ndarray]
     div_at = np.asarray(trace.diverged_at, dtype=float)
     alive = t[None, :] < div_at[:, None]
     with np.errstate(invalid="ignore"):
-        bank = np.where(alive, trace.bank, 0.0)
+        bank = _rows(np.where(alive, trace.bank, 0.0))
     out = []
     for seg in spec.steps:
         if abs(seg.size_rad) <= _ZERO_STEP_RAD:
@@ -720,9 +732,9 @@ def evaluate(trace: Trace, spec: MetricSpec) -> dict[str, np.ndarray]:
     diverged = np.isfinite(div_at)
     alive = t[None, :] < div_at[:, None]
     with np.errstate(invalid="ignore"):
-        bank = np.where(alive, trace.bank, 0.0)
-        cmd = np.where(alive, trace.bank_cmd, 0.0)
-        ail = np.where(alive, trace.aileron, 0.0)
+        bank = _rows(np.where(alive, trace.bank, 0.0))
+        cmd = _rows(np.where(alive, trace.bank_cmd, 0.0))
+        ail = _rows(np.where(alive, trace.aileron, 0.0))
 
     result: dict[str, np.ndarray] = {}
     per_step = evaluate_steps(trace, spec)

@@ -12,10 +12,10 @@ from dataclasses import dataclass
 import numpy as np
 from rollrig.controllers.base import Controller
 
-from .controller_section import make_controller
-from .core import simulate
+from .build import build_setup, make_controller
+from .driver import run_batch
 from .metrics import METRIC_INFO, MetricSpec, StepSegment, evaluate
-from .scenario import Scenario, build_setup
+from .scenario import Scenario
 from .stats import MetricSummary, PassSummary, pass_fraction, summarize
 from .trace import Trace
 
@@ -139,6 +139,7 @@ def run_scenario(
     """
     ctrl = controller if controller is not None else make_controller(sc.controller, allow_code=allow_code)
     runs = range(sc.run.runs) if run_indices is None else run_indices
-    trace = simulate(build_setup(sc), ctrl, seed=sc.run.seed, run_indices=runs, record_states=record_states)
+    res = run_batch(build_setup(sc), ctrl, seed=sc.run.seed, run_indices=runs, record_states=record_states)
+    trace = res.trace
     metrics = evaluate(trace, metric_spec(sc))
     return RunOutcome(scenario=sc, trace=trace, metrics=metrics, passed=judge(metrics, sc))

@@ -18,10 +18,10 @@ from pathlib import Path
 
 import numpy as np
 
-from .controller_section import make_controller
-from .core import Stepper
+from .build import build_setup, make_controller
+from .driver import run_batch
 from .errors import LogFileError
-from .scenario import Scenario, build_setup
+from .scenario import Scenario
 
 __all__ = ["SensorLogData", "make_log", "write_log", "read_log", "DEFAULT_COLUMNS"]
 
@@ -45,24 +45,24 @@ def make_log(
     """Simulate run ``run`` of a scenario and record every delivered frame."""
     setup = build_setup(sc)
     ctrl = make_controller(sc.controller, allow_code=allow_code)
-    stepper = Stepper(setup)
-    obs = stepper.reset(sc.run.seed if seed is None else seed, [run])
-    ctrl.reset(1)
-    while obs is not None:
-        obs = stepper.advance(ctrl.step(obs))
-    cam = stepper.camera
-    value, valid, conf = cam.frame_readings()
-    deliver = cam.plan.deliver_step[0]
-    keep = deliver <= setup.n_steps
-    d = deliver[keep]
-    reading = np.where(valid[0, keep], value[0, keep], np.nan)
-    return SensorLogData(
-        t=d * setup.dt,
-        reference=stepper.rec_bank[d, 0].copy(),
-        reading=reading,
-        valid=valid[0, keep].copy(),
-        confidence=None if conf is None else conf[0, keep].copy(),
-    )
+    got = {}
+
+    def frames(stepper, rows) -> None:
+        cam = stepper.camera
+        value, valid, conf = cam.frame_readings()
+        deliver = cam.deliver_step[0]
+        keep = deliver <= setup.n_steps
+        d = deliver[keep]
+        got["log"] = SensorLogData(
+            t=d * setup.dt,
+            reference=stepper.rec_bank[d, 0].copy(),
+            reading=np.where(valid[0, keep], value[0, keep], np.nan),
+            valid=valid[0, keep].copy(),
+            confidence=None if conf is None else conf[0, keep].copy(),
+        )
+
+    run_batch(setup, ctrl, seed=sc.run.seed if seed is None else seed, run_indices=[run], on_done=frames)
+    return got["log"]
 
 
 def write_log(path: Path, log: SensorLogData) -> None:

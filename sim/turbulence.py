@@ -41,8 +41,16 @@ Discretisation: exact covariance (Van Loan)
     (variance π/dt held over the step) because the ZOH sequence's variance is
     wrong by a factor that depends on dt/τ for the fast p and r filters (their
     time constants 4b/(πV) and 3b/(πV) are a few tenths of a second for a light
-    airplane, not many base steps); the price is four normal draws per step
-    instead of two.
+    airplane, not many base steps). The price is three normal draws per step
+    instead of two: the (v, r) block of ``Q_d`` is driven by one white noise
+    and is numerically rank 2 over a short step (:func:`noise_factor`), and
+    p needs one.
+
+Where it runs
+    The stepping core carries the four filter states in its own state vector
+    (:class:`sim.disturbance.NoiseFilter`), so the gusts reach the plant
+    through the same exact matrix product that advances the aircraft, held
+    over each base step; only the noise increments are drawn, per block.
 
 Sign of r_g
     The plant uses air-relative rates ``r_air = r - r_g`` and sideslip from
@@ -66,14 +74,12 @@ Scale lengths
 from __future__ import annotations
 
 import math
-from collections.abc import Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 import scipy.linalg
-from rollrig.sensors.stages import first_order_recursion
 
-from .disturbance import N_CHANNELS
+from .disturbance import N_CHANNELS, NoiseFilter
 
 __all__ = [
     "FT_M",
@@ -88,6 +94,8 @@ __all__ = [
     "analytic_psd",
     "stationary_sigma",
     "DrydenTurbulence",
+    "RANK_TOL",
+    "noise_factor",
 ]
 
 #: One foot in metres (exact, international foot).
@@ -141,9 +149,9 @@ class DrydenParams:
     span_m: float
 
     def __post_init__(self) -> None:
-        for name in ("sigma_v_mps", "sigma_w_mps"):
-            value = getattr(self, name)
-            if not (math.isfinite(value) and value >= 0.0):
+        for name in ("sigma_v_mps", "sigma_w_mps"):  # per run allowed: (batch,) arrays
+            value = np.asarray(getattr(self, name), dtype=float)
+            if not (value.ndim <= 1 and np.all(np.isfinite(value)) and np.all(value >= 0.0)):
                 raise ValueError(f"DrydenParams.{name} must be finite and >= 0, got {value!r}")
         for name in ("length_v_m", "length_w_m", "airspeed_mps", "span_m"):
             value = getattr(self, name)
@@ -350,109 +358,76 @@ def stationary_sigma(params: DrydenParams) -> dict[str, float]:
     return {name: float(np.sqrt(max(s, 0.0))) for name, s in zip(names, var, strict=True)}
 
 
-class DrydenTurbulence:
-    """Dryden lateral turbulence as a :class:`~sim.disturbance.DisturbanceSource`.
+#: The side/yaw-gust block of the step noise covariance is numerically rank 2
+#: (one white noise drives three states over a short step); its third
+#: eigenvalue is dropped when below this fraction of the largest (the
+#: covariance is then reproduced to this relative accuracy).
+RANK_TOL = 1e-8
 
-    Fills channels 0, 1, 2 (v_gust m/s, p_gust rad/s, r_gust rad/s) of each
-    block; channel 3 is zero. Each run draws from its own generator (4 normals
-    for its initial state, then 4 per base step in time order), so run ``i``
-    alone equals run ``i`` of a batch, and splitting the time axis into
-    different blocks gives the same numbers.
+
+def noise_factor(qd: np.ndarray) -> np.ndarray:
+    """A factor ``F`` with ``F Fᵀ = Q_d`` using as few columns (normal draws) as the rank needs.
+
+    ``Q_d`` is the step noise covariance of :func:`dryden_state_space`'s four
+    states: the p state (index 3) is independent of the (v, r) states. The
+    (v, r) block is driven by one white noise, so over a step much shorter
+    than its time constants its third eigenvalue is 1e-11 to 1e-9 of the
+    largest (light airplane at 5 to 20 ms): two columns from its
+    eigen-decomposition reproduce it to that relative accuracy, far below any
+    Monte Carlo error. When the third eigenvalue exceeds :data:`RANK_TOL` of
+    the largest (long base steps), three columns are kept.
+    Returns ``(4, q)``, ``q`` = 3 or 4.
+    """
+    block = 0.5 * (qd[:3, :3] + qd[:3, :3].T)
+    lam, vec = np.linalg.eigh(block)  # ascending
+    keep = lam > RANK_TOL * max(lam[-1], 0.0)
+    keep[-1] = True
+    cols = vec[:, keep] * np.sqrt(lam[keep])
+    cols = cols[:, ::-1]  # largest first
+    q = cols.shape[1] + 1
+    f = np.zeros((4, q))
+    f[:3, : q - 1] = cols
+    f[3, q - 1] = math.sqrt(max(qd[3, 3], 0.0))
+    return f
+
+
+@dataclass(frozen=True)
+class DrydenTurbulence:
+    """Dryden lateral turbulence as a shaped-noise disturbance source.
+
+    Feeds channels 0, 1, 2 (v_gust m/s, p_gust rad/s, r_gust rad/s). Each run
+    draws from its own generator (4 normals for its stationary initial state,
+    then 3 per base step in time order: two for the rank-2 side/yaw-gust
+    noise, one for the roll gust), so run ``i`` alone equals run ``i`` of a
+    batch and the block length does not change the numbers. ``sigma_v_mps``
+    and ``sigma_w_mps`` of ``params`` may be ``(batch,)`` arrays: the filters
+    are built for unit intensity and each run's noise is scaled by its own σ.
 
     Parameters
     ----------
     params : DrydenParams
     """
 
-    component = "dryden"
+    params: DrydenParams
+    component: str = "dryden"
 
-    def __init__(self, params: DrydenParams) -> None:
-        self.params = params
-        self._a, self._b, self._c = dryden_state_space(params)
-
-    # ------------------------------------------------------------------ setup
-    def reset(self, dt: float, rngs: Sequence[np.random.Generator]) -> None:
-        """Start a batch with base step ``dt`` (s) and one generator per run."""
+    def noise_filter(self, dt: float, batch: int) -> NoiseFilter:
+        """Exact discrete model (Van Loan) at base step ``dt`` for a batch of ``batch`` runs."""
         if not (math.isfinite(dt) and dt > 0.0):
-            raise ValueError(f"DrydenTurbulence.reset: dt must be > 0, got {dt!r}")
-        self._dt = float(dt)
-        self._rngs = list(rngs)
-        q = NOISE_INTENSITY * (self._b @ self._b.T)
-        phi, qd = van_loan(self._a, q, self._dt)
-        # Φ is block lower-triangular: (v, r) states 0..2, p state 3.
-        self._phi = np.tril(phi)
-        self._phi[3, :3] = 0.0
-        self._phi[:3, 3] = 0.0
-        self._qd = qd
-        self._lq = np.zeros((4, 4))
-        self._lq[:3, :3] = _lower_sqrt(qd[:3, :3])
-        self._lq[3, 3] = math.sqrt(max(qd[3, 3], 0.0))
-        p_inf = scipy.linalg.solve_continuous_lyapunov(self._a, -q)
-        self._p_inf = p_inf
+            raise ValueError(f"DrydenTurbulence: dt must be > 0, got {dt!r}")
+        unit = replace(self.params, sigma_v_mps=1.0, sigma_w_mps=1.0)
+        a, b, c = dryden_state_space(unit)
+        q = NOISE_INTENSITY * (b @ b.T)
+        phi, qd = van_loan(a, q, float(dt))
+        phi = np.tril(phi)  # Φ is block lower-triangular: (v, r) states 0..2, p state 3
+        phi[3, :3] = 0.0
+        p_inf = scipy.linalg.solve_continuous_lyapunov(a, -q)
         lp = np.zeros((4, 4))
         lp[:3, :3] = _lower_sqrt(p_inf[:3, :3])
         lp[3, 3] = math.sqrt(max(p_inf[3, 3], 0.0))
-        batch = len(self._rngs)
-        z0 = np.empty((4, batch))
-        for i, g in enumerate(self._rngs):
-            z0[:, i] = g.standard_normal(4)
-        self._x = self._tri_apply(lp, z0)  # (4, batch) state at step self._k
-        self._k = 0
-
-    @staticmethod
-    def _tri_apply(low: np.ndarray, z: np.ndarray) -> np.ndarray:
-        """``low @ z`` for lower-triangular ``low``, elementwise in a fixed order.
-
-        Written out (not BLAS) so each run's numbers do not depend on the batch
-        size or block length through the matrix-product kernel chosen.
-        """
-        out = np.zeros_like(z)
-        for i in range(low.shape[0]):
-            for j in range(i + 1):
-                if low[i, j] != 0.0:
-                    out[i] += low[i, j] * z[j]
-        return out
-
-    # ------------------------------------------------------------------ blocks
-    def _propagate(self, i: int, u: np.ndarray) -> np.ndarray:
-        """States ``x_i[k0 .. k0+n-1]`` of ``x[k+1] = a x[k] + u[k]``; ``u`` is (n, batch)."""
-        a = self._phi[i, i]
-        start = self._x[i]
-        # y[k] = x_i[k0+k+1] = a·x_i[k0+k] + u[k], time along axis 0
-        y = first_order_recursion(u.T, a, y_prev=start).T
-        x = np.empty_like(y)
-        x[0] = start
-        x[1:] = y[:-1]
-        self._x[i] = y[-1]
-        return x
-
-    def block(self, k0: int, n: int) -> np.ndarray:
-        """Gust inputs for base steps ``k0 .. k0+n-1``, shape ``(n, batch, 4)`` (a fresh array)."""
-        if k0 != self._k:
-            raise ValueError(
-                f"DrydenTurbulence.block: expected k0 = {self._k}, got {k0} "
-                "(blocks must come in order, without gaps)"
-            )
-        batch = len(self._rngs)
-        out = np.empty((n, batch, N_CHANNELS))
-        if n == 0:
-            return out
-        z = np.empty((batch, n, 4))
-        for i, g in enumerate(self._rngs):
-            g.standard_normal(out=z[i])  # run i's own stream, in time order
-        z = np.ascontiguousarray(z.transpose(2, 1, 0))  # (4, n, batch): time-major per normal
-        lq, phi, c = self._lq, self._phi, self._c
-        # Lower-triangular recursions, state by state, vectorised over runs;
-        # the products are written out elementwise so each run's numbers do not
-        # depend on the batch size or the block length.
-        x0 = self._propagate(0, lq[0, 0] * z[0])
-        x1 = self._propagate(1, lq[1, 0] * z[0] + lq[1, 1] * z[1] + phi[1, 0] * x0)
-        u2 = lq[2, 0] * z[0] + lq[2, 1] * z[1] + lq[2, 2] * z[2] + phi[2, 0] * x0 + phi[2, 1] * x1
-        x2 = self._propagate(2, u2)
-        x3 = self._propagate(3, lq[3, 3] * z[3])
-        out[..., 0] = c[0, 0] * x0 + c[0, 1] * x1
-        out[..., 1] = c[1, 3] * x3
-        out[..., 2] = c[2, 0] * x0 + c[2, 1] * x1 + c[2, 2] * x2
-        out[..., 3] = 0.0
-        self._k = k0 + n
-        return out
+        out = np.zeros((N_CHANNELS, 4))
+        out[:3] = c
+        sv = np.broadcast_to(np.asarray(self.params.sigma_v_mps, dtype=float), (batch,))
+        sw = np.broadcast_to(np.asarray(self.params.sigma_w_mps, dtype=float), (batch,))
+        scale = np.ascontiguousarray(np.stack([sv, sv, sv, sw]))
+        return NoiseFilter(phi=phi, noise_factor=noise_factor(qd), init_factor=lp, out=out, scale=scale)

@@ -19,16 +19,22 @@ def _rng_for(seed: int, batch: int):
     return lambda name: run_generators(seed, range(batch), name)
 
 
+def _reader(cfg, dt, n_steps, ticks, batch, rng_for):
+    cam = CameraReader(cfg, dt, n_steps, ticks, batch)
+    cam.history = np.zeros((n_steps + 1, batch))
+    cam.start(np.arange(batch), rng_for)
+    return cam
+
+
 def _drive(cfg: CameraConfig, bank_fn, *, dt=0.001, n_steps=20_000, batch=4, seed=1, every=1):
     """Run the reader alone against a known bank history; return readings at ticks."""
-    cam = CameraReader(cfg, dt)
     ticks = np.arange(0, n_steps, every)
+    cam = _reader(cfg, dt, n_steps, ticks, batch, _rng_for(seed, batch))
     t = np.arange(n_steps + 1) * dt
-    hist = np.repeat(bank_fn(t)[:, None], batch, axis=1)
-    cam.reset(n_steps, ticks, batch, _rng_for(seed, batch), history=hist)
+    cam.history = np.repeat(bank_fn(t)[:, None], batch, axis=1)
     out_b, out_v, out_a = [], [], []
-    for k in ticks:
-        b, v, a = cam.read(k * dt)
+    for j, k in enumerate(ticks):
+        b, v, a = cam.read(j, k * dt)
         out_b.append(b.copy()), out_v.append(v.copy()), out_a.append(a.copy())
     return cam, ticks * dt, np.array(out_b), np.array(out_v), np.array(out_a)
 
@@ -46,8 +52,7 @@ def test_delivery_buffer_mean_delay_is_latency_plus_half_period():
 
 def test_delivery_in_order_with_random_latency():
     cfg = CameraConfig(frame_rate_hz=30.0, latency_s=0.02, latency_jitter_s=0.03)
-    cam = CameraReader(cfg, 0.001)
-    cam.reset(20_000, np.arange(20_000), 8, _rng_for(2, 8), history=np.zeros((20_001, 8)))
+    cam = _reader(cfg, 0.001, 20_000, np.arange(20_000), 8, _rng_for(2, 8))
     d, c = cam.plan.deliver_step, cam.plan.capture_step
     assert np.all(np.diff(d, axis=1) >= 0)  # in order
     extra = (d - c) * 0.001 - 0.02
@@ -76,26 +81,23 @@ def test_per_run_latency_and_dropout_arrays():
     frame_valid = cam.frame_readings()[1].mean(axis=1)
     assert_allclose(frame_valid, 1.0 - drop, atol=0.02)  # 2500 frames: SE ≤ 1 %
     # a run of the batch with per-run values equals that run alone with floats
-    solo = CameraReader(CameraConfig(frame_rate_hz=50.0, latency_s=0.05, dropout_prob=0.2), 0.002)
-    solo.reset(
+    solo = _reader(
+        CameraConfig(frame_rate_hz=50.0, latency_s=0.05, dropout_prob=0.2),
+        0.002,
         1000,
         np.arange(0, 1000, 10),
         1,
         lambda name: run_generators(1, [1], name),
-        history=np.zeros((1001, 1)),
     )
     assert_array_equal(solo.plan.deliver_step[0], cam.plan.deliver_step[1][: solo.plan.n_frames])
     with pytest.raises(ValueError):
-        CameraReader(CameraConfig(dropout_prob=np.array([0.1, 0.2])), 0.01).reset(
-            100, np.arange(100), 3, _rng_for(1, 3), history=np.zeros((101, 3))
-        )
+        _reader(CameraConfig(dropout_prob=np.array([0.1, 0.2])), 0.01, 100, np.arange(100), 3, _rng_for(1, 3))
 
 
 def test_per_run_burst_loss_rate():
     rates = np.array([0.05, 0.3])
     cfg = CameraConfig(frame_rate_hz=100.0, bursts=BurstConfig(loss_rate=rates, mean_burst_frames=4.0))
-    cam = CameraReader(cfg, 0.01)
-    cam.reset(100_000, np.arange(0, 100_000, 2), 2, _rng_for(4, 2), history=np.zeros((100_001, 2)))
+    cam = _reader(cfg, 0.01, 100_000, np.arange(0, 100_000, 2), 2, _rng_for(4, 2))
     lost = ~cam._kept
     # ~100 000 frames, burst variance factor (1+λ)/(1−λ) ≤ 8: SE ≤ 0.5 % abs
     assert_allclose(lost.mean(axis=0), rates, atol=0.02)

@@ -8,7 +8,7 @@ import tomllib
 import numpy as np
 import pytest
 from numpy.testing import assert_allclose
-from rollrig.sim.disturbance import DisturbanceSet, DisturbanceSource, SteadyRollMoment
+from rollrig.sim.disturbance import DisturbanceSet, DisturbanceSource, SteadyRollMoment, disturbance_record
 from rollrig.sim.disturbance_section import parse_disturbance
 from rollrig.sim.errors import ScenarioError
 from rollrig.sim.gusts import OneMinusCosineGust, one_minus_cosine
@@ -20,8 +20,7 @@ V, B = 50.0, 10.0
 
 
 def gust_signal(gust: OneMinusCosineGust, dt: float, n: int, batch: int = 3, block: int = 64):
-    gust.reset(dt, run_generators(0, range(batch), gust.component))
-    return np.concatenate([gust.block(k, min(block, n - k)) for k in range(0, n, block)])
+    return disturbance_record(gust, dt, n, lambda name: run_generators(0, range(batch), name), block=block)
 
 
 def analytic_1mc(t, onset, d_m, amp, v, hold):
@@ -88,8 +87,7 @@ def test_gust_and_bias_sum_in_a_disturbance_set():
     g = OneMinusCosineGust(0.5, 25.0, 3.0, "v_gust", V)
     m = SteadyRollMoment(accel_rad_s2=0.1, step_time_s=1.0, step_accel_rad_s2=0.2)
     ds = DisturbanceSet([g, m])
-    ds.reset(0.01, lambda name: run_generators(1, range(2), name))
-    out = ds.block(0, 200, 2)
+    out = disturbance_record(ds, 0.01, 200, lambda name: run_generators(1, range(2), name))
     t = np.arange(200) * 0.01
     assert_allclose(out[:, 1, 0], analytic_1mc(t, 0.5, 25.0, 3.0, V, False), atol=1e-12)
     assert_allclose(out[:, 0, 3], np.where(t >= 1.0 - 1e-12, 0.3, 0.1), atol=1e-15)

@@ -16,6 +16,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
+from rollrig.sim.disturbance import disturbance_record
 from rollrig.sim.seeding import run_generators
 from rollrig.sim.turbulence import DrydenParams, DrydenTurbulence, analytic_psd, stationary_sigma
 
@@ -53,8 +54,7 @@ def check_turbulence(
 
     n = int(round(duration_s / dt))
     src = DrydenTurbulence(params)
-    src.reset(dt, run_generators(seed, range(runs), src.component))
-    x = np.asarray(src.block(0, n))  # (n, runs, 4)
+    x = disturbance_record(src, dt, n, lambda name: run_generators(seed, range(runs), name))  # (n, runs, 4)
     spec = stationary_sigma(params)
     nper = min(n, 2 ** int(math.log2(max(n // 8, 256))))
     fs = 1.0 / dt
