@@ -388,8 +388,9 @@ class CameraReader:
         self._prev_idx = np.full(batch, -2, dtype=np.int64)  # -2: nothing evaluated yet
         self._prev_value = np.zeros(batch)
         self._prev_valid = np.zeros(batch, dtype=bool)
-        self._image = None if cfg.image is None else cfg.image.start(n, batch)
         self.history: np.ndarray | None = None
+        # image-level stage: its per-run streams are set by start()
+        self._image = None if cfg.image is None else cfg.image.start(n, batch, lambda name: [None] * batch)
 
     def start(self, rows: np.ndarray, rng_for: RngFor) -> None:
         """(Re)start the runs ``rows``: new timing plan and draws from ``rng_for`` (one generator per row)."""

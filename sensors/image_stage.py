@@ -72,18 +72,18 @@ class ImageStageSpec:
             if kind not in D.KINDS:
                 raise ValueError(f"degradation {kind!r}; allowed: {', '.join(D.KINDS)}")
 
-    def start(self, n_frames: int, batch: int):
+    def start(self, n_frames: int, batch: int, rng_for: Callable[[str], Sequence[np.random.Generator]]):
         """The running stage for one batch (owns the random streams and the frame cache)."""
-        return ImageStage(self, n_frames, batch)
+        return ImageStage(self, n_frames, batch, rng_for)
 
 
 class ImageStage:
     """The stateful half: per-run streams and every frame's reading once read."""
 
-    def __init__(self, spec: ImageStageSpec, n_frames: int, batch: int) -> None:
+    def __init__(self, spec: ImageStageSpec, n_frames: int, batch: int, rng_for) -> None:
         self.spec = spec
         self.instrument = Instrument(spec.size_px, colour=spec.colour)
-        self.gens: list[np.random.Generator | None] = [None] * batch
+        self.gens = list(rng_for("camera.image"))
         order = {k: i for i, k in enumerate(ORDER)}
         self.steps = sorted(
             ((k, np.broadcast_to(np.asarray(s, dtype=float), (batch,))) for k, s in spec.degradations),
@@ -94,8 +94,8 @@ class ImageStage:
         self.done = np.zeros((n_frames + 1, batch), dtype=bool)
         self.images_read = 0
 
-    def restart(self, rows: np.ndarray, rng_for: Callable[[str], Sequence[np.random.Generator]]) -> None:
-        """(Re)start runs ``rows``: fresh streams (one generator per row) and no frame read yet."""
+    def restart(self, rows: np.ndarray, rng_for) -> None:
+        """(Re)start runs ``rows``: their own streams from ``rng_for``, no frame read yet."""
         rows = np.asarray(rows, dtype=np.int64)
         for r, g in zip(rows, rng_for("camera.image"), strict=True):
             self.gens[r] = g

@@ -137,7 +137,11 @@ def run_scenario(
         Which runs to simulate (default ``range(sc.run.runs)``); a single index
         replays one run of a Monte Carlo set exactly.
     """
-    ctrl = controller if controller is not None else make_controller(sc.controller, allow_code=allow_code)
+    ctrl = (
+        controller
+        if controller is not None
+        else make_controller(sc.controller, allow_code=allow_code, scenario=sc)
+    )
     runs = range(sc.run.runs) if run_indices is None else run_indices
     res = run_batch(build_setup(sc), ctrl, seed=sc.run.seed, run_indices=runs, record_states=record_states)
     trace = res.trace

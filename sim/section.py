@@ -17,7 +17,7 @@ from typing import Any
 
 import numpy as np
 
-from .errors import ScenarioError
+from .errors import ScenarioError, shorten
 
 __all__ = ["Section", "REQUIRED"]
 
@@ -60,7 +60,7 @@ class Section:
     def where(self, key: str) -> str:
         """``file: [section] key`` prefix for messages."""
         key = key if key.isprintable() else repr(key)  # a quoted TOML key may hold "\n"
-        return f"{self.file}: [{self.path}] {key}"
+        return f"{self.file}: [{shorten(self.path, 120)}] {shorten(key, 80)}"
 
     def error(self, key: str, message: str) -> ScenarioError:
         """Build a one-line :class:`ScenarioError` about ``key``."""

@@ -44,7 +44,7 @@ def make_log(
 ) -> SensorLogData:
     """Simulate run ``run`` of a scenario and record every delivered frame."""
     setup = build_setup(sc)
-    ctrl = make_controller(sc.controller, allow_code=allow_code)
+    ctrl = make_controller(sc.controller, allow_code=allow_code, scenario=sc)
     got = {}
 
     def frames(stepper, rows) -> None:

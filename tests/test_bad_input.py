@@ -458,7 +458,7 @@ def test_check_stops_at_first_bad_file(cli, write_doc):
     [
         (["--runs", "0"], ("--runs 0", "allowed: 1 ≤ runs ≤ 100000")),
         (["--runs", "1000000"], ("--runs 1000000", "allowed: 1 ≤ runs ≤ 100000")),
-        (["--seed", "-1"], ("--seed -1", "seed ≥ 0")),
+        (["--seed", "-1"], ("--seed -1", "0 ≤ seed ≤ 2^63")),
         (["--replay", "2"], ("--replay 2", "allowed: 0 ≤ N < 2")),
         (["--replay", "-1"], ("--replay -1", "allowed: 0 ≤ N < 2")),
         (["--runs", "3", "--replay", "3"], ("--replay 3", "0 ≤ N < 3")),

@@ -37,6 +37,12 @@ def _metrics(folder: Path) -> dict:
     return json.loads((folder / "metrics.json").read_text())
 
 
+def _per_run(folder: Path) -> dict[str, np.ndarray]:
+    """Per-run metrics from ``metrics.npz`` (the same columns as ``metrics.csv``)."""
+    with np.load(folder / "metrics.npz") as z:
+        return {k: z[k] for k in z.files}
+
+
 def _assert_png(path: Path) -> None:
     data = path.read_bytes()
     assert data[:8] == PNG_MAGIC, f"{path.name} is not a PNG"
@@ -77,16 +83,20 @@ def test_run_writes_complete_folder(cli, tmp_path, scenario):
     cmd = man["command_line"]
     assert isinstance(cmd, list) and "run" in cmd and str(scenario) in cmd and "--plot" in cmd
 
-    met = _metrics(out)
-    assert met["run_index"] == [0, 1]
-    for key, values in met["metrics"].items():
-        assert len(values) == 2, key
-        assert all(v is not None for v in values), f"NaN written for {key}"
+    met = _per_run(out)
+    assert met["run"].tolist() == [0, 1]
+    for key, values in met.items():
+        assert values.shape == (2,), key
+        assert not np.any(np.isnan(values.astype(float))), f"NaN written for {key}"
+    summary = _metrics(out)["summary"]
+    assert summary["rms_error_rad"]["n"] == 2 and "itae" not in summary
 
     rows = list(csv.reader(io.StringIO((out / "metrics.csv").read_text())))
-    assert rows[0][0] == "run" and len(rows) == 3
+    assert rows[0] == list(met) and len(rows) == 3
     assert [int(r[0]) for r in rows[1:]] == [0, 1]
     assert all(len(r) == len(rows[0]) for r in rows)
+    col = rows[0].index("rms_error_rad")
+    assert [float(r[col]) for r in rows[1:]] == met["rms_error_rad"].tolist()  # one unit per key
 
     with np.load(out / "trace.npz") as tr:
         n = int(round(doc["run"]["duration_s"] / doc["run"]["base_step_s"])) + 1
@@ -105,16 +115,16 @@ def test_single_run_has_no_envelope(cli, tmp_path):
     assert code == 0, err
     assert (out / "bank.png").exists() and (out / "aileron.png").exists()
     assert not (out / "envelope.png").exists()
-    assert _metrics(out)["run_index"] == [0]
+    assert _per_run(out)["run"].tolist() == [0]
 
 
-def test_force_replaces_folder(cli, tmp_path):
+def test_force_replaces_a_folder_rollrig_wrote(cli, tmp_path):
     out = tmp_path / "out"
-    out.mkdir()
-    (out / "old.txt").write_text("old")
+    code, _, err = cli(["run", BUNDLED[0], "--runs", "2", "--out", out, "--format", "csv"])
+    assert code == 0, err
     code, _, err = cli(["run", BUNDLED[0], "--runs", "1", "--out", out, "--force", "--format", "csv"])
     assert code == 0, err
-    assert not (out / "old.txt").exists() and (out / "manifest.json").exists()
+    assert _metrics(out)["runs"] == 1
     assert [p.name for p in tmp_path.iterdir()] == ["out"]  # no temp or old folder left
 
 
@@ -138,12 +148,17 @@ def test_format_csv(cli, uav):
     assert code == 0, err
     blocks = [list(csv.reader(io.StringIO(b))) for b in out.strip().split("\n\n")]
     assert len(blocks) >= 2  # metrics, then criteria
-    for block in blocks:  # "# title", a header row, then rows of the header's width
-        title, header, *body = block
-        assert title[0].startswith("# ") and len(header) >= 2 and body
+    for block in blocks:  # a header row, then rows of the header's width
+        header, *body = block
+        assert len(header) >= 2 and body
         assert all(len(r) == len(header) for r in body)
-    assert blocks[0][1][0] == "metric" and blocks[1][1][0] == "criterion"
-    float(blocks[0][2][2])  # the std column of the first metric is a plain number
+    head = blocks[0][0]
+    assert head[:2] == ["metric", "unit"] and blocks[1][0][0] == "criterion"
+    for row in blocks[0][1:]:  # one value per cell: every statistic is a plain number (or empty)
+        for name, cell in zip(head[2:], row[2:], strict=True):
+            if cell:
+                float(cell), name
+    assert "[" not in out and "@" not in out and "# " not in out
 
 
 def test_format_md(cli, uav):
@@ -182,8 +197,8 @@ def replayed(tmp_path_factory, uav):
 def test_replay_is_run_n_of_the_batch(replayed):
     """Replay gives run 2's own random streams: equal to ~1e-12, while other runs differ."""
     batch, one = replayed
-    mb, mo = _metrics(batch), _metrics(one)
-    assert mo["run_index"] == [2]
+    mb, mo = _per_run(batch), _per_run(one)
+    assert mo["run"].tolist() == [2]
     assert json.loads((one / "manifest.json").read_text())["run_indices"] == [2]
     with np.load(batch / "trace.npz") as tb, np.load(one / "trace.npz") as to:
         # the camera readings and controller output are bit-identical ...
@@ -192,18 +207,19 @@ def test_replay_is_run_n_of_the_batch(replayed):
         np.testing.assert_allclose(to["bank_rad"][0], tb["bank_rad"][2], rtol=0, atol=1e-12)
         # ... and the check can fail: run 1 is far from run 2
         assert np.max(np.abs(tb["bank_reading_rad"][1] - tb["bank_reading_rad"][2])) > 1e-3
-    for key, values in mb["metrics"].items():
-        # metrics.json writes infinities as "inf"; float() reads them back
+    for key, values in mb.items():
+        if key == "run":
+            continue
         np.testing.assert_allclose(
-            float(mo["metrics"][key][0]), float(values[2]), rtol=1e-10, atol=1e-12, err_msg=key
+            mo[key][0].astype(float), values[2].astype(float), rtol=1e-10, atol=1e-12, err_msg=key
         )
 
 
 def test_replay_is_bit_identical(replayed):
     batch, one = replayed
-    mb, mo = _metrics(batch), _metrics(one)
-    for key, values in mb["metrics"].items():
-        assert mo["metrics"][key] == [values[2]], key  # exact, as --replay promises
+    mb, mo = _per_run(batch), _per_run(one)
+    for key, values in mb.items():
+        assert mo[key].tolist() == [values[2]], key  # exact, as --replay promises
     with np.load(batch / "trace.npz") as tb, np.load(one / "trace.npz") as to:
         np.testing.assert_array_equal(to["bank_rad"][0], tb["bank_rad"][2])
 
@@ -213,10 +229,10 @@ def test_same_seed_same_metrics_other_seed_differs(cli, tmp_path, uav):
     for folder, seed in ((a, "5"), (b, "5"), (c, "6")):
         code, _, err = cli(["run", uav, "--runs", "2", "--seed", seed, "--out", folder, "--format", "csv"])
         assert code == 0, err
-    ma, mb, mc = (_metrics(f)["metrics"] for f in (a, b, c))
-    assert ma == mb
+    ma, mb, mc = (_per_run(f) for f in (a, b, c))
+    assert all(ma[k].tolist() == mb[k].tolist() for k in ma)
     assert json.loads((a / "manifest.json").read_text())["seed"] == 5
-    changed = [k for k in ma if ma[k] != mc[k]]
+    changed = [k for k in ma if ma[k].tolist() != mc[k].tolist()]
     assert "rms_error_rad" in ma and "rms_error_rad" in changed, changed
 
 

@@ -13,9 +13,9 @@ from rollrig.sim.analysis.linear_loop import (
     closed_loop_response,
     margins,
     open_loop_response,
-    plot_margins,
     rational_loop,
 )
+from rollrig.sim.report.margin_plots import plot_margins
 
 # A roll-only plant phi/da = a2 / (s (s + a1)), states (p, phi): p' = -a1 p + a2 da.
 A1, A2 = 8.4, 28.9  # 1/s, 1/s^2 — Lp and |L_da| of the light airplane (REFERENCES.md, Nelson)
@@ -251,7 +251,7 @@ def test_closed_loop_tracks_at_low_frequency_and_matches_formula() -> None:
 
 
 def test_grid_too_narrow_raises() -> None:
-    with pytest.raises(ValueError, match="wider omega"):
+    with pytest.raises(ValueError, match="widen the frequency range"):
         margins(second_order_loop(0.5, 50.0), omega=np.logspace(-2, 1, 300))
 
 

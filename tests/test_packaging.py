@@ -36,7 +36,7 @@ def _run_metrics(tmp: Path, name: str, env: dict[str, str]) -> dict:
         timeout=300,
     )
     assert res.returncode == 0, res.stderr
-    return json.loads((out / "metrics.json").read_text())["metrics"]
+    return json.loads((out / "metrics.json").read_text())["summary"]
 
 
 def test_user_packages_named_like_ours_do_not_shadow_rollrig(tmp_path):

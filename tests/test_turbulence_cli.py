@@ -5,8 +5,8 @@ from __future__ import annotations
 import json
 
 import pytest
+from rollrig.sim.analysis.turbulence_check import check_turbulence
 from rollrig.sim.cli.main import main
-from rollrig.sim.report.turbulence_check import check_turbulence
 from rollrig.sim.turbulence import FT_M, INTENSITY_W20_MPS, dryden_params
 
 
@@ -79,7 +79,7 @@ def test_scenario_turbulence_is_used(capsys):
             "--records",
             "2",
             "--format",
-            "csv",
+            "json",
         ]
     )
     assert code == 0

@@ -332,7 +332,11 @@ def settle_verdict(
 
 # ------------------------------------------------------------------ search
 def _controller_for(sc: Scenario, controller: Controller | None, allow_code: bool) -> Controller:
-    return controller if controller is not None else make_controller(sc.controller, allow_code=allow_code)
+    return (
+        controller
+        if controller is not None
+        else make_controller(sc.controller, allow_code=allow_code, scenario=sc)
+    )
 
 
 def _window_s(settings: EmpiricalSettings) -> float:

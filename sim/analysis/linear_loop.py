@@ -46,14 +46,14 @@ Which figure uses which model
 from __future__ import annotations
 
 import math
-import os
 from dataclasses import dataclass, field
-from pathlib import Path
 from typing import Any
 
 import control as ct
 import numpy as np
 from scipy.optimize import brentq, minimize_scalar
+
+from .loop_sources import DataLoop, FrequencyResponse, SystemLoop, _poly_break_magnitudes, dc_value
 
 __all__ = [
     "LoopParts",
@@ -65,7 +65,8 @@ __all__ = [
     "closed_loop_response",
     "rational_loop",
     "margins",
-    "plot_margins",
+    "FrequencyResponse",
+    "loop_evaluator",
 ]
 
 #: Default analysis grid, rad/s: 1e-3 … 1e3, 1000 points per decade.
@@ -269,6 +270,7 @@ class _Evaluator:
     """
 
     def __init__(self, parts: LoopParts) -> None:
+        self.parts = parts
         cam_c, gyro_c = _controller_blocks(parts)
         act = _actuator(parts)
         hold = 0.5 * parts.controller_dt_s
@@ -301,11 +303,34 @@ class _Evaluator:
         fwd = _freq(self.forward.rational, w) * np.exp(-1j * w * self.forward.delay_s)
         return fwd / (1.0 + big_l)
 
-    def loop1(self, x: float) -> complex:
-        return complex(self.loop(np.array([x]))[0])
+    kind = "model with exact delays"
 
-    def closed1(self, x: float) -> complex:
-        return complex(self.closed(np.array([x]))[0])
+    def dc(self) -> complex | None:
+        """``L(0)`` (every delay is 1 at DC), ``None`` with an integrator in the loop."""
+        total = 0.0 + 0.0j
+        for path in self.paths:
+            v = dc_value(path.rational)
+            if v is None:
+                return None
+            total += v
+        return total
+
+    def stable(self, pade_order: int = 6) -> bool:
+        """Closed-loop stability from the eigenvalues of the Padé closed loop."""
+        closed = ct.feedback(rational_loop(self.parts, pade_order), 1.0, sign=-1)
+        poles = np.linalg.eigvals(closed.A) if closed.A.size else np.array([])
+        return bool(np.all(poles.real < 0.0))
+
+    def closed_dc(self) -> float:
+        return abs(complex(self.closed(np.array([_OMEGA_DC]))[0]))
+
+    def breaks(self) -> np.ndarray:
+        """Magnitudes of the non-zero poles and zeros of the rational parts, rad/s."""
+        return np.concatenate([_poly_break_magnitudes(p.rational) for p in self.paths] or [np.array([])])
+
+    @property
+    def camera_delay_s(self) -> float:
+        return self.parts.camera_delay_s
 
 
 def _freq(sys: ct.TransferFunction, omega: np.ndarray) -> np.ndarray:
@@ -415,7 +440,7 @@ def rational_loop(parts: LoopParts, pade_order: int = 6) -> ct.StateSpace:
 
 @dataclass(frozen=True)
 class LoopMargins:
-    """Stability margins of the loop broken at the aileron command.
+    """Stability margins of the loop broken at the aileron command (or any plant input).
 
     Attributes
     ----------
@@ -424,10 +449,12 @@ class LoopMargins:
         in magnitude (python-control's choice); negative means a gain
         *reduction* reaches instability. ``inf`` if the phase never crosses −180°.
     phase_crossover_rad_s : float, rad/s
-        Frequency of that crossover (``nan`` if none).
+        Frequency of that crossover (``nan`` if none; 0 when ``L(0)`` is real
+        and negative: an odd number of unstable poles and no integrator).
     upper_gain_margin_db, lower_gain_margin_db : float, dB
         Smallest gain increase (≥ 0 dB, ``inf`` if none) and smallest gain
-        reduction (≤ 0 dB, ``-inf`` if none) that put ``L`` through −1.
+        reduction (≤ 0 dB, ``-inf`` if none) that put ``L`` through −1,
+        the crossover at ω = 0 included.
     phase_margin_deg : float, deg
         Phase margin at the gain crossover whose margin is smallest in
         magnitude, in (−180, 180]. ``inf`` if ``|L|`` never crosses 1.
@@ -451,14 +478,30 @@ class LoopMargins:
     sensitivity_peak_db : float, dB
         ``max |S(jω)|`` on the grid (refined).
     bandwidth_rad_s : float, rad/s
-        Lowest frequency where the command-to-bank response falls 3 dB below
+        Lowest frequency where the command-to-output response falls 3 dB below
         its DC level (``inf`` if it never does on the grid).
-    closed_loop_stable : bool
-        From the eigenvalues of the Padé closed loop (order ``pade_order``).
+    closed_loop_stable : bool or None
+        From the closed-loop poles (Padé closed loop for delays); ``None``
+        when the loop is given as frequency-response data (data cannot tell).
     pade_order : int
         Padé order used for the stability flag.
     phase_crossovers_rad_s, gain_crossovers_rad_s : tuple of float, rad/s
-        All crossovers found on the grid.
+        Every crossover found (ω = 0 first when it is a phase crossover).
+    phase_crossover_margins_db : tuple of float, dB
+        Gain margin at each phase crossover (same order).
+    gain_crossover_margins_deg, gain_crossover_delay_margins_s : tuple of float
+        Phase margin (deg) and delay margin (s) at each gain crossover.
+    stability_margin : float
+        Smallest distance from ``L(jω)`` to −1, ``min |1 + L|`` (= 1/‖S‖∞).
+    stability_margin_rad_s : float, rad/s
+        Frequency where it is reached.
+    omega_range_rad_s : (float, float), rad/s
+        Frequency range searched.
+    source : str
+        Kind of loop analysed (model with exact delays, python-control system,
+        frequency-response data).
+    notes : tuple of str
+        Cautions about this result (e.g. a crossover may lie outside the data).
     """
 
     gain_margin_db: float
@@ -475,16 +518,28 @@ class LoopMargins:
     disk_frequency_rad_s: float
     sensitivity_peak_db: float
     bandwidth_rad_s: float
-    closed_loop_stable: bool
+    closed_loop_stable: bool | None
     pade_order: int
     phase_crossovers_rad_s: tuple[float, ...] = field(default=())
     gain_crossovers_rad_s: tuple[float, ...] = field(default=())
+    phase_crossover_margins_db: tuple[float, ...] = field(default=())
+    gain_crossover_margins_deg: tuple[float, ...] = field(default=())
+    gain_crossover_delay_margins_s: tuple[float, ...] = field(default=())
+    stability_margin: float = math.nan
+    stability_margin_rad_s: float = math.nan
+    omega_range_rad_s: tuple[float, float] = (math.nan, math.nan)
+    source: str = "model with exact delays"
+    notes: tuple[str, ...] = field(default=())
 
     @property
     def gain_margin_ok(self) -> bool:
-        """MIL-F-9490D §3.1.3.6: at least 6 dB of gain margin both ways."""
+        """MIL-F-9490D §3.1.3.6: at least 6 dB of gain margin both ways.
+
+        With frequency-response data (stability unknown) this judges the
+        margins alone, assuming the nominal closed loop is stable.
+        """
         return (
-            self.closed_loop_stable
+            self.closed_loop_stable is not False
             and self.upper_gain_margin_db >= MIL_F_9490D_GAIN_MARGIN_DB
             and self.lower_gain_margin_db <= -MIL_F_9490D_GAIN_MARGIN_DB
         )
@@ -492,7 +547,7 @@ class LoopMargins:
     @property
     def phase_margin_ok(self) -> bool:
         """MIL-F-9490D §3.1.3.6: at least 45° of phase margin."""
-        return self.closed_loop_stable and self.phase_margin_deg >= MIL_F_9490D_PHASE_MARGIN_DEG
+        return self.closed_loop_stable is not False and self.phase_margin_deg >= MIL_F_9490D_PHASE_MARGIN_DEG
 
     @property
     def meets_mil_f_9490d(self) -> bool:
@@ -533,17 +588,97 @@ def _refine_max(fun: Any, w: np.ndarray, values: np.ndarray) -> tuple[float, flo
     return best_w, best_v
 
 
-def margins(parts: LoopParts, omega: Any = None, pade_order: int = 6) -> LoopMargins:
-    """Classical, delay and disk margins and the closed-loop bandwidth.
+def loop_evaluator(loop: Any) -> Any:
+    """The evaluator of a loop: :class:`LoopParts`, python-control system or data.
 
     Parameters
     ----------
-    parts : LoopParts
-        The loop.
+    loop : LoopParts, control.TransferFunction, control.StateSpace,
+        control.FrequencyResponseData or FrequencyResponse
+
+    Raises
+    ------
+    ValueError
+        For a MIMO, discrete-time, improper or ill-posed system.
+    TypeError
+        For anything else.
+    """
+    if isinstance(loop, LoopParts):
+        return _Evaluator(loop)
+    if isinstance(loop, FrequencyResponse):
+        return DataLoop(loop)
+    if isinstance(loop, ct.FrequencyResponseData):
+        return DataLoop(FrequencyResponse.from_frd(loop))
+    if isinstance(loop, (ct.TransferFunction, ct.StateSpace)):
+        return SystemLoop(loop)
+    raise TypeError(
+        "margins() takes LoopParts, a python-control TransferFunction/StateSpace/"
+        f"FrequencyResponseData or a FrequencyResponse, got {type(loop).__name__}"
+    )
+
+
+#: Frequency grid density, points per decade.
+_PER_DECADE = 1000
+#: Widest automatic grid, rad/s.
+_GRID_LIMITS = (1e-9, 1e9)
+
+
+def _power_law_crossover(ev: Any, w0: float, w1: float) -> float | None:
+    """Where ``|L|`` reaches 1 extrapolating its power law through ``w0``, ``w1`` (rad/s)."""
+    m0, m1 = np.abs(ev.loop(np.array([w0, w1])))
+    if not (m0 > 0.0 and m1 > 0.0):
+        return None
+    k = math.log(m1 / m0) / math.log(w1 / w0)
+    if abs(k) < 0.5:  # flat: |L| does not pass 1 out there
+        return None
+    return math.exp(math.log(w1) - math.log(m1) / k)
+
+
+def auto_omega(ev: Any) -> np.ndarray:
+    """Frequency grid for a rational loop (with or without delays), rad/s.
+
+    From ``min(1e-3, 0.1·|slowest pole or zero|)`` to ``max(1e3, 10·|fastest|)``,
+    widened while ``|L|``'s low- or high-frequency power law (the slope it has
+    beyond every pole and zero) still predicts a gain crossover outside
+    (issue: a crossover below the old fixed 1e-3 rad/s vanished silently);
+    1000 points per decade.
+    """
+    br = np.asarray(ev.breaks())
+    br = br[np.isfinite(br) & (br > 0)]
+    lo = min(1e-3, 0.1 * float(br.min())) if br.size else 1e-3
+    hi = max(1e3, 10.0 * float(br.max())) if br.size else 1e3
+    lo, hi = max(lo, _GRID_LIMITS[0]), min(hi, _GRID_LIMITS[1])
+    for _ in range(4):
+        x = _power_law_crossover(ev, lo * 10.0**-0.5, lo)
+        if x is None or x >= lo or lo <= _GRID_LIMITS[0]:
+            break
+        lo = max(0.1 * x, _GRID_LIMITS[0])
+    for _ in range(4):
+        if abs(ev.loop(np.array([hi]))[0]) < 1.0:
+            break
+        x = _power_law_crossover(ev, hi, hi * 10.0**0.5)
+        if x is None or x <= hi or hi >= _GRID_LIMITS[1]:
+            break
+        hi = min(10.0 * x, _GRID_LIMITS[1])
+    n = int(math.ceil(math.log10(hi / lo) * _PER_DECADE)) + 1
+    return np.logspace(math.log10(lo), math.log10(hi), n)
+
+
+def margins(loop: Any, omega: Any = None, pade_order: int = 6) -> LoopMargins:
+    """Classical, delay, disk and stability margins, every crossover, and the bandwidth.
+
+    Parameters
+    ----------
+    loop : LoopParts, python-control system, or frequency-response data
+        The loop broken at the plant input (negative feedback): a
+        :class:`LoopParts` (exact delays), a continuous-time SISO
+        ``TransferFunction``/``StateSpace`` (biproper allowed), or
+        ``FrequencyResponseData``/:class:`FrequencyResponse` (margins from the
+        data, interpolated in ``log ω``; closed-loop stability unknown).
     omega : array_like, rad/s, optional
-        Analysis grid (default :data:`DEFAULT_OMEGA`, 1e-3 … 1e3 rad/s, 1000
-        points per decade). Crossovers are bracketed on the grid and refined
-        with :func:`scipy.optimize.brentq` on the exact-delay response.
+        Analysis grid. Default for models: :func:`auto_omega` (from the loop's
+        own poles and zeros); for data: the data's frequencies. Crossovers are
+        bracketed on the grid and refined with :func:`scipy.optimize.brentq`.
     pade_order : int
         Padé order per delay for the closed-loop stability flag only.
 
@@ -554,22 +689,57 @@ def margins(parts: LoopParts, omega: Any = None, pade_order: int = 6) -> LoopMar
     Raises
     ------
     ValueError
-        If ``|L|`` is still ≥ 1 at the top of the grid (a crossover may lie
-        beyond it): pass a wider ``omega``.
+        If the loop has no gain (``L ≡ 0``), or if ``|L|`` is still ≥ 1 at the
+        top of a given ``omega`` (a crossover may lie beyond it).
     """
-    w = _as_omega(DEFAULT_OMEGA if omega is None else omega)
-    w = np.unique(w)
+    ev = loop_evaluator(loop)
+    data = isinstance(ev, DataLoop)
+    notes: list[str] = []
+    if omega is None:
+        w = ev.omega if data else auto_omega(ev)
+    else:
+        w = np.unique(_as_omega(omega))
+        if data:
+            w = w[(w >= ev.omega[0]) & (w <= ev.omega[-1])]
     if w.size < 3:
         raise ValueError("omega needs at least 3 distinct frequencies")
-    ev = _Evaluator(parts)
-    loop = ev.loop1
-    big_l = ev.loop(w)
-    if abs(big_l[-1]) >= 1.0:
-        raise ValueError(f"|L| is still >= 1 at the top of the grid ({w[-1]:.3g} rad/s); pass a wider omega")
 
-    # Phase crossovers: L real and negative (Im L changes sign with Re L < 0).
-    wpc_all = [x for x in _roots(lambda x: loop(x).imag, w, big_l.imag) if loop(x).real < 0.0]
-    gm_all = [-20.0 * math.log10(abs(loop(x))) for x in wpc_all]
+    def loop1(x: float) -> complex:
+        return complex(ev.loop(np.array([x]))[0])
+
+    big_l = ev.loop(w)
+    mag = np.abs(big_l)
+    if not np.any(mag > 0.0):
+        raise ValueError("the loop has no gain: L(jω) = 0 at every frequency")
+    if abs(big_l[-1]) >= 1.0:
+        tail = _power_law_crossover(ev, w[-2], w[-1]) if not data else None
+        if data:
+            notes.append(
+                f"|L| is still ≥ 1 at the highest frequency of the data ({w[-1]:.3g} rad/s): "
+                "a gain crossover may lie above it; measure to higher frequency."
+            )
+        elif tail is not None and tail > w[-1]:
+            raise ValueError(
+                f"|L| is still >= 1 at the top of the frequency grid ({w[-1]:.3g} rad/s): "
+                "a gain crossover lies above it; widen the frequency range analysed"
+            )
+    if data and abs(big_l[0]) < 1.0:
+        notes.append(
+            f"|L| is below 1 at the lowest frequency of the data ({w[0]:.3g} rad/s): "
+            "a gain crossover may lie below it."
+        )
+    mag_db = np.log(np.where(mag > 0.0, mag, np.finfo(float).tiny))
+
+    # Phase crossovers: L real and negative (Im L changes sign with Re L < 0) …
+    wpc_all = [x for x in _roots(lambda x: loop1(x).imag, w, big_l.imag) if loop1(x).real < 0.0]
+    gm_all = [-20.0 * math.log10(abs(loop1(x))) for x in wpc_all]
+    # … and at ω = 0 when L(0) is finite, real and negative: Im L need not change sign
+    # near 0, so the grid cannot see it (python-control's phase_crossover_frequencies
+    # lists ω = 0 the same way).
+    l0 = ev.dc()
+    if l0 is not None and l0.real < 0.0 and abs(l0.imag) <= 1e-9 * abs(l0):
+        wpc_all.insert(0, 0.0)
+        gm_all.insert(0, -20.0 * math.log10(abs(l0)))
     if gm_all:
         k = int(np.argmin(np.abs(gm_all)))
         gain_margin_db, wpc = gm_all[k], wpc_all[k]
@@ -579,11 +749,11 @@ def margins(parts: LoopParts, omega: Any = None, pade_order: int = 6) -> LoopMar
     lower = max([g for g in gm_all if g < 0.0], default=-math.inf)
 
     # Gain crossovers: |L| = 1.
-    wgc_all = _roots(lambda x: math.log(abs(loop(x))), w, np.log(np.abs(big_l)))
+    wgc_all = _roots(lambda x: math.log(max(abs(loop1(x)), np.finfo(float).tiny)), w, mag_db)
     pm_all = []
     dm_all = []
     for x in wgc_all:
-        ang = math.degrees(np.angle(-loop(x)))  # = ∠L + 180°, wrapped to (−180, 180]
+        ang = math.degrees(np.angle(-loop1(x)))  # = ∠L + 180°, wrapped to (−180, 180]
         pm_all.append(ang)
         dm_all.append(math.radians(ang % 360.0) / x)
     if pm_all:
@@ -592,23 +762,17 @@ def margins(parts: LoopParts, omega: Any = None, pade_order: int = 6) -> LoopMar
     else:
         phase_margin_deg, wgc = math.inf, math.nan
 
-    # Stability flag from the Padé closed loop.
-    closed = ct.feedback(rational_loop(parts, pade_order), 1.0, sign=-1)
-    poles = np.linalg.eigvals(closed.A) if closed.A.size else np.array([])
-    stable = bool(np.all(poles.real < 0.0))
-
-    if not stable:
+    stable = ev.stable(pade_order)
+    if stable is False:
         delay_margin = 0.0
     else:
         delay_margin = min(dm_all, default=math.inf)
-    if parts.camera_delay_s > 0.0:
-        dm_multiple = delay_margin / parts.camera_delay_s
-    else:
-        dm_multiple = math.inf
+    cam = ev.camera_delay_s
+    dm_multiple = delay_margin / cam if cam > 0.0 else math.inf
 
-    # Balanced disk margin from the exact-delay response.
+    # Balanced disk margin.
     def half_s_minus_t(x: float) -> float:
-        lx = loop(x)
+        lx = loop1(x)
         return abs((1.0 - lx) / (2.0 * (1.0 + lx)))
 
     wdm, peak = _refine_max(half_s_minus_t, w, np.abs((1.0 - big_l) / (2.0 * (1.0 + big_l))))
@@ -616,14 +780,15 @@ def margins(parts: LoopParts, omega: Any = None, pade_order: int = 6) -> LoopMar
     disk_gm = 20.0 * math.log10((2.0 + alpha) / (2.0 - alpha)) if alpha < 2.0 else math.inf
     disk_pm = math.degrees(2.0 * math.atan(alpha / 2.0))
 
-    _, ms = _refine_max(lambda x: abs(1.0 / (1.0 + loop(x))), w, np.abs(1.0 / (1.0 + big_l)))
+    # Stability margin: smallest |1 + L| (the sensitivity peak's reciprocal).
+    wsm, ms = _refine_max(lambda x: abs(1.0 / (1.0 + loop1(x))), w, np.abs(1.0 / (1.0 + big_l)))
 
-    # Closed-loop bandwidth (exact delays).
-    t_dc = abs(ev.closed1(_OMEGA_DC))
+    # Closed-loop bandwidth.
+    t_dc = ev.closed_dc()
     t_mag = np.abs(ev.closed(w, big_l))
     level = t_dc / math.sqrt(2.0)
     below = np.nonzero(t_mag < level)[0]
-    if t_dc == 0.0 or below.size == 0:
+    if t_dc == 0.0 or not math.isfinite(t_dc) or below.size == 0:
         bandwidth = math.inf if t_dc > 0.0 else math.nan
     elif below[0] == 0:
         bandwidth = float(w[0])
@@ -631,12 +796,17 @@ def margins(parts: LoopParts, omega: Any = None, pade_order: int = 6) -> LoopMar
         i = int(below[0])
         bandwidth = float(
             brentq(
-                lambda x: abs(ev.closed1(x)) - level,
+                lambda x: abs(complex(ev.closed(np.array([x]))[0])) - level,
                 w[i - 1],
                 w[i],
                 xtol=1e-14,
                 rtol=1e-13,
             )
+        )
+    if data:
+        notes.append(
+            "Frequency-response data: closed-loop stability cannot be read from the data; "
+            "the margins assume the nominal closed loop is stable."
         )
 
     return LoopMargins(
@@ -656,18 +826,14 @@ def margins(parts: LoopParts, omega: Any = None, pade_order: int = 6) -> LoopMar
         bandwidth_rad_s=float(bandwidth),
         closed_loop_stable=stable,
         pade_order=int(pade_order),
-        phase_crossovers_rad_s=tuple(wpc_all),
-        gain_crossovers_rad_s=tuple(wgc_all),
+        phase_crossovers_rad_s=tuple(float(x) for x in wpc_all),
+        gain_crossovers_rad_s=tuple(float(x) for x in wgc_all),
+        phase_crossover_margins_db=tuple(float(g) for g in gm_all),
+        gain_crossover_margins_deg=tuple(float(p) for p in pm_all),
+        gain_crossover_delay_margins_s=tuple(float(d) for d in dm_all),
+        stability_margin=float(1.0 / ms),
+        stability_margin_rad_s=float(wsm),
+        omega_range_rad_s=(float(w[0]), float(w[-1])),
+        source=ev.kind,
+        notes=tuple(notes),
     )
-
-
-# ---------------------------------------------------------------------------
-# Plot (lives in :mod:`sim.analysis.margin_plots`; kept here for existing callers)
-# ---------------------------------------------------------------------------
-
-
-def plot_margins(parts: LoopParts, path: str | os.PathLike[str], omega: Any = None) -> Path:
-    """Bode, Nichols and Nyquist plots; see :func:`sim.analysis.margin_plots.plot_margins`."""
-    from .margin_plots import plot_margins as _plot
-
-    return _plot(parts, path, omega)

@@ -134,8 +134,9 @@ def schedule_stats(sc: Scenario, *, frames: int = 600) -> ScheduleStats:
     Frames are captured at ``round(f·T/dt)`` base steps and delivered
     ``round(latency/dt)`` steps later (latency + mean random extra latency);
     the controller ticks every ``round(1/(rate·dt))`` steps and uses the newest
-    delivered reading — the same rounding as the stepping core. The first
-    tenth of the horizon is skipped.
+    delivered reading — the same rounding as the stepping core, whose ticks
+    fall on multiples of the controller period from step 0. Ticks before the
+    first delivery and the first tenth of the rest are skipped.
 
     Parameters
     ----------
@@ -155,7 +156,10 @@ def schedule_stats(sc: Scenario, *, frames: int = 600) -> ScheduleStats:
     every = int(round(1.0 / (sc.controller.rate_hz * dt)))
     capture = np.rint(np.arange(frames) * period / dt).astype(np.int64)
     arrive = capture + int(round(latency / dt))
-    ticks = np.arange(int(arrive[0]), int(arrive[-1]), every)
+    # The core ticks at multiples of the controller period counted from step 0
+    # (LoopSetup.tick_steps), not from the first frame's arrival.
+    ticks = np.arange(0, int(arrive[-1]), every)
+    ticks = ticks[ticks >= arrive[0]]
     newest = np.searchsorted(arrive, ticks, side="right") - 1
     keep = slice(ticks.size // 10, None)
     ticks, newest = ticks[keep], newest[keep]

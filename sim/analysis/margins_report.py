@@ -598,7 +598,7 @@ def write_margin_plots(rep: MarginsReport, folder: Path) -> list[Path]:
     list of pathlib.Path
         Files written.
     """
-    from .margin_plots import plot_margins
+    from rollrig.sim.report.margin_plots import plot_margins
 
     out = []
     if rep.parts is not None:

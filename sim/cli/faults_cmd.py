@@ -105,7 +105,7 @@ def run(args: argparse.Namespace) -> int:
     if args.out is not None:
         from rollrig.sim.report.outdir import check_out_dir
 
-        check_out_dir(args.out, args.force)
+        check_out_dir(args.out, args.force, protect=[args.scenario])
     try:
         ranking = rank_faults(sc, args.metric, allow_code=args.allow_code)
     except KeyError:
@@ -118,7 +118,7 @@ def run(args: argparse.Namespace) -> int:
     if args.out is not None:
         from rollrig.sim.report.outdir import manifest, output_folder, write_json
 
-        with output_folder(args.out, force=args.force) as tmp:
+        with output_folder(args.out, force=args.force, protect=[args.scenario]) as tmp:
             (tmp / "faults.md").write_text(render([table], "md"))
             write_json(tmp / "faults.json", table.records)
             write_json(

@@ -4,28 +4,11 @@ from __future__ import annotations
 
 import argparse
 import hashlib
-import math
 from pathlib import Path
 
 from rollrig.sim.cli.common import print_tables, say_written
 
-__all__ = ["add_parser", "run", "fit_tables", "plot_fit"]
-
-_ROWS = (  # key, label, shown in degrees
-    ("frame_rate_hz", "frame rate", False),
-    ("jitter_s", "timing jitter", False),
-    ("latency_s", "latency (effective)", False),
-    ("bias_rad", "bias", True),
-    ("scale", "scale", False),
-    ("quantization_rad", "quantisation step", True),
-    ("noise_rad", "white noise std", True),
-    ("wander_rad", "wandering error std", True),
-    ("wander_time_s", "wander correlation time", False),
-    ("outlier_prob", "outlier rate", False),
-    ("outlier_rad", "outlier size", True),
-    ("loss_rate", "loss rate", False),
-    ("mean_burst_frames", "mean burst length", False),
-)
+__all__ = ["add_parser", "run"]
 
 
 def add_parser(sub) -> None:
@@ -63,63 +46,10 @@ def add_parser(sub) -> None:
     p.set_defaults(func=run)
 
 
-def fit_tables(fit, source: str):
-    from rollrig.sim.report.table import Table, fmt_number
-
-    t = Table(title=f"Sensor fit: {source}", columns=["quantity", "estimate", "± 1 SE", "unit", "how"])
-    recs = []
-    for key, label, in_deg in _ROWS:
-        e = fit.estimates[key]
-        v, se, unit = e.value, e.se, e.unit
-        if in_deg:
-            v, se, unit = math.degrees(v), math.degrees(se), "deg"
-        t.add(label, fmt_number(v, 4), fmt_number(se, 2), unit, e.note)
-        recs.append(
-            {
-                "quantity": key.replace("_rad", "_deg") if in_deg else key,
-                "estimate": v,
-                "se": se,
-                "unit": unit,
-                "how": e.note,
-            }
-        )
-    t.records = recs
-    t.notes = [
-        f"{fit.n_rows} rows, {fit.n_frames} frames; SE = one standard error (asymptotic formulas)",
-        "losses "
-        + (
-            "come in bursts: sensor.bursts table written"
-            if fit.bursty
-            else "look independent: dropout_prob written"
-        ),
-    ]
-    return [t]
-
-
-def plot_fit(fit, path: Path, title: str) -> None:
-    from rollrig.sim.report.plots import pyplot
-
-    plt = pyplot()
-    fig, (a, b) = plt.subplots(2, 1, figsize=(10, 6), sharex=True)
-    deg = 180.0 / math.pi
-    ok = ~fit.outlier & ~(fit.predicted != fit.predicted)
-    a.plot(fit.t, fit.reading * deg, ".", ms=2, label="reading")
-    a.plot(fit.t, fit.predicted * deg, "-", lw=0.8, label="fitted model of the reference (shifted, scaled)")
-    a.plot(fit.t[fit.outlier], fit.reading[fit.outlier] * deg, "rx", ms=4, label="outliers")
-    a.set_ylabel("bank, deg")
-    a.legend(loc="upper right", fontsize=8)
-    a.set_title(title)
-    b.plot(fit.t[ok], (fit.reading - fit.predicted)[ok] * deg, ".", ms=2)
-    b.set_ylabel("residual, deg")
-    b.set_xlabel("time, s")
-    fig.tight_layout()
-    fig.savefig(path, dpi=110)
-    plt.close(fig)
-
-
 def run(args: argparse.Namespace) -> int:
     from rollrig.sensors.fit import LogProblem, fit_sensor, sensor_toml
     from rollrig.sim.errors import LogFileError, UserInputError
+    from rollrig.sim.report.fit_report import fit_tables, plot_fit
     from rollrig.sim.report.outdir import check_out_dir, default_out_dir, manifest, output_folder, write_json
     from rollrig.sim.report.table import render
     from rollrig.sim.sensor_log import read_log
@@ -137,7 +67,7 @@ def run(args: argparse.Namespace) -> int:
     out_dir = None
     if not args.no_files:
         out_dir = args.out or default_out_dir("fit-" + Path(args.log).stem)
-        check_out_dir(out_dir, args.force)
+        check_out_dir(out_dir, args.force, protect=[args.log])
     try:
         fit = fit_sensor(log.t, log.reference, log.reading, log.valid, max_latency_s=args.max_latency)
     except LogProblem as exc:
@@ -149,7 +79,7 @@ def run(args: argparse.Namespace) -> int:
         print("\n" + snippet)
     if out_dir is not None:
         raw = Path(args.log).read_bytes()
-        with output_folder(out_dir, force=args.force) as tmp:
+        with output_folder(out_dir, force=args.force, protect=[args.log]) as tmp:
             (tmp / "sensor.toml").write_text(snippet)
             (tmp / "estimates.md").write_text(render(tables, "md"))
             (tmp / "estimates.json").write_text(render(tables, "json"))

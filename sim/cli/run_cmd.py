@@ -5,21 +5,17 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-import numpy as np
-from rollrig.sim.cli.common import apply_run_overrides, print_tables, say_written
+from rollrig.sim.cli.common import (
+    add_seed_option,
+    apply_run_overrides,
+    check_batch_resources,
+    print_tables,
+    progress_reporter,
+    say_written,
+)
 from rollrig.sim.errors import UserInputError
 
-__all__ = ["add_parser", "run", "HEADLINE_METRICS"]
-
-#: metrics drawn as histograms for Monte Carlo sets
-HEADLINE_METRICS = [
-    "settling_time_s",
-    "overshoot_pct",
-    "rms_error_rad",
-    "peak_abs_bank_rad",
-    "aileron_rms_rad",
-    "time_outside_band_s",
-]
+__all__ = ["add_parser", "run"]
 
 
 def add_parser(sub) -> None:
@@ -30,12 +26,16 @@ def add_parser(sub) -> None:
     )
     p.add_argument("scenario", metavar="FILE", help="scenario file (TOML)")
     p.add_argument("--runs", type=int, help="number of Monte Carlo runs (overrides [run] runs)")
-    p.add_argument("--seed", type=int, help="run seed (overrides [run] seed)")
+    add_seed_option(p)
     p.add_argument("--replay", type=int, metavar="N", help="replay run N of the Monte Carlo set alone")
     p.add_argument(
         "--out", type=Path, metavar="DIR", help="output folder (default rollrig-runs/<name>-<time>)"
     )
-    p.add_argument("--force", action="store_true", help="replace an existing output folder")
+    p.add_argument(
+        "--force",
+        action="store_true",
+        help="replace an existing output folder that rollrig wrote (never any other folder)",
+    )
     p.add_argument("--no-files", action="store_true", help="print the table only, write no folder")
     p.add_argument(
         "--format",
@@ -58,6 +58,8 @@ def add_parser(sub) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
+    from rollrig.sim.controller_guard import CheckedController
+    from rollrig.sim.controller_section import make_controller
     from rollrig.sim.report.outdir import check_out_dir, default_out_dir, output_folder
     from rollrig.sim.report.table import render
     from rollrig.sim.runner import run_scenario
@@ -73,12 +75,17 @@ def run(args: argparse.Namespace) -> int:
     else:
         runs = list(range(sc.run.runs))
 
+    est = check_batch_resources(sc, len(runs), where=args.scenario)
     out_dir = None
     if not args.no_files:
         out_dir = args.out or default_out_dir(Path(sc.path).stem)
-        check_out_dir(out_dir, args.force)
+        check_out_dir(out_dir, args.force, protect=[args.scenario])
 
-    outcome = run_scenario(sc, allow_code=args.allow_code, run_indices=runs)
+    ctrl = make_controller(sc.controller, allow_code=args.allow_code, scenario=sc)
+    with progress_reporter(est.seconds, sc.run.duration_s, f"{len(runs)} run(s)") as tick:
+        if tick is not None or sc.controller.kind != "pid":  # a user's class: check what it returns
+            ctrl = CheckedController(ctrl, progress=tick)
+        outcome = run_scenario(sc, controller=ctrl, run_indices=runs)
 
     from rollrig.sim.report.run_tables import run_tables
 
@@ -92,56 +99,12 @@ def run(args: argparse.Namespace) -> int:
     if out_dir is not None:
         from rollrig.sim.report.run_files import write_run_files
 
-        with output_folder(out_dir, force=args.force) as tmp:
+        with output_folder(out_dir, force=args.force, protect=[args.scenario]) as tmp:
             write_run_files(tmp, outcome, run_indices=runs, command_line=getattr(args, "command_line", None))
             (tmp / "metrics.md").write_text(render(tables, "md"))
             if args.plot:
-                _plots(tmp, outcome)
+                from rollrig.sim.report.run_plots import write_run_plots
+
+                write_run_plots(tmp, outcome)
         say_written(out_dir, args.format)
     return 0
-
-
-def worst_run(outcome) -> int:
-    """Row of the run to draw: the first diverged run, else the largest RMS error."""
-    tr = outcome.trace
-    if tr.diverged.any():
-        return int(np.argmax(tr.diverged))
-    return int(np.argmax(outcome.metrics["rms_error_rad"]))
-
-
-def _plots(folder: Path, outcome) -> None:
-    from rollrig.sim.metrics import METRIC_INFO
-    from rollrig.sim.report.plots import plot_aileron, plot_bank, plot_envelope, plot_histograms
-
-    sc, tr = outcome.scenario, outcome.trace
-    worst = worst_run(outcome)
-    which = "" if tr.batch == 1 else " (worst of the set)"
-    plot_bank(
-        tr,
-        folder / "bank.png",
-        run=worst,
-        bank_limit_rad=sc.criteria.bank_limit_rad,
-        title=f"{sc.title}: bank angle, run {int(tr.run_index[worst])}{which}",
-    )
-    plot_aileron(
-        tr,
-        folder / "aileron.png",
-        run=worst,
-        limit_rad=sc.actuator.limit_rad,
-        title=f"{sc.title}: aileron, run {int(tr.run_index[worst])}{which}",
-    )
-    if tr.batch > 1:
-        plot_envelope(
-            tr,
-            folder / "envelope.png",
-            bank_limit_rad=sc.criteria.bank_limit_rad,
-            title=f"{sc.title}: bank envelope, {tr.batch} runs",
-        )
-        plot_histograms(
-            outcome.metrics,
-            METRIC_INFO,
-            folder / "histograms.png",
-            diverged=tr.diverged,
-            keys=HEADLINE_METRICS,
-            title=f"{sc.title}: {tr.batch} runs",
-        )

@@ -1,20 +1,83 @@
-"""The files of a ``rollrig run`` output folder."""
+"""The files of a ``rollrig run`` output folder.
+
+Per run: ``metrics.csv`` (one row per run, one value per cell, SI units in
+the header names, empty cell = never reached) and ``metrics.npz`` (the same
+columns as arrays, ``inf`` = never reached). Summaries: ``metrics.json``
+(statistics and pass fractions, ``null`` = never reached or no run to
+summarise). Traces: ``trace.npz`` (every run up to :data:`MAX_RUNS_IN_NPZ`
+runs, above that the percentile envelope of the runs that did not diverge)
+and, for the first run and the run the plots show, ``trace_run<N>.csv`` and
+``controller_run<N>.csv`` named by run index ``N``. Nothing per run is
+written as JSON: CSV and arrays are fast to write and to read.
+"""
 
 from __future__ import annotations
 
-import csv
 from pathlib import Path
 
 import numpy as np
 from rollrig.sim.metrics import METRIC_INFO
 from rollrig.sim.runner import RunOutcome
 
+from .metric_keys import file_key, si_unit
 from .outdir import manifest, write_json
+from .run_tables import _summary_record, divergence_note
 
-__all__ = ["write_run_files", "MAX_RUNS_IN_NPZ"]
+__all__ = ["write_run_files", "MAX_RUNS_IN_NPZ", "ENVELOPE_PERCENTILES", "worst_run"]
 
 MAX_RUNS_IN_NPZ = 100
+ENVELOPE_PERCENTILES = (0, 5, 25, 50, 75, 95, 100)
 _DEG = 180.0 / np.pi
+
+
+def worst_run(outcome: RunOutcome) -> tuple[int, str]:
+    """Row of the run the plots show, and why: the first diverged run, else the largest RMS error."""
+    tr = outcome.trace
+    if tr.diverged.any():
+        return int(np.argmin(tr.diverged_at)), "first to diverge"
+    return int(np.argmax(outcome.metrics["rms_error_rad"])), "largest RMS error"
+
+
+def _column_text(v: np.ndarray, fmt: str = "%.17g") -> list[str]:
+    """CSV cells of one column: full precision, empty for non-finite, 1/0 for booleans."""
+    if v.dtype == bool:
+        return np.where(v, "true", "false").tolist()
+    if np.issubdtype(v.dtype, np.integer):
+        return v.astype(str).tolist()
+    out = np.char.mod(fmt, v).astype(object)
+    out[~np.isfinite(v)] = ""
+    return out.tolist()
+
+
+def _write_csv(path: Path, header: list[str], columns: list[np.ndarray], fmt: str = "%.17g") -> None:
+    cells = [_column_text(np.asarray(c), fmt) for c in columns]
+    lines = [",".join(header)]
+    lines.extend(",".join(row) for row in zip(*cells, strict=True))
+    path.write_text("\n".join(lines) + "\n")
+
+
+def _trace_csvs(folder: Path, tr, row: int) -> list[str]:
+    n = int(tr.run_index[row])
+    f1, f2 = f"trace_run{n}.csv", f"controller_run{n}.csv"
+    _write_csv(
+        folder / f1,
+        ["t_s", "bank_cmd_deg", "bank_deg", "roll_rate_deg_s", "aileron_deg"],
+        [
+            tr.t,
+            tr.bank_cmd[row] * _DEG,
+            tr.bank[row] * _DEG,
+            tr.roll_rate[row] * _DEG,
+            tr.aileron[row] * _DEG,
+        ],
+        fmt="%.9g",
+    )
+    _write_csv(
+        folder / f2,
+        ["t_s", "bank_reading_deg", "valid", "age_s", "aileron_cmd_deg"],
+        [tr.t_ctrl, tr.bank_meas[row] * _DEG, tr.valid[row], tr.age[row], tr.aileron_cmd[row] * _DEG],
+        fmt="%.9g",
+    )
+    return [f1, f2]
 
 
 def write_run_files(
@@ -26,72 +89,49 @@ def write_run_files(
     """
     sc, tr = out.scenario, out.trace
     written = []
-    write_json(
-        folder / "manifest.json",
-        manifest(
-            scenario_path=sc.path,
-            scenario_sha256=sc.sha256,
-            seed=sc.run.seed,
-            runs=run_indices,
-            command_line=command_line,
-            extra={"title": sc.title, "duration_s": sc.run.duration_s, "base_step_s": sc.run.base_step_s},
-        ),
-    )
-    written.append("manifest.json")
+    div = tr.diverged
 
-    per_run = {k: v for k, v in out.metrics.items()}
+    # per run: CSV and arrays, SI, the unit in every name
+    keys = [k for k in out.metrics if k not in ("diverged", "diverged_at_s")]
+    names = ["run", "diverged", "diverged_at_s", *[file_key(k) for k in keys]]
+    names += [f"pass_{c}" for c in out.passed] + ["pass_all"]
+    cols = [tr.run_index, div, tr.diverged_at, *[np.asarray(out.metrics[k]) for k in keys]]
+    cols += [np.asarray(ok, bool) for ok in out.passed.values()] + [out.all_passed]
+    _write_csv(folder / "metrics.csv", names, cols)
+    np.savez(folder / "metrics.npz", **dict(zip(names, cols, strict=True)))
+    written += ["metrics.csv", "metrics.npz"]
+
+    # summaries: JSON
+    summaries = {}
+    for k, s in out.summaries().items():
+        rec = _summary_record(k, s)
+        summaries[rec.pop("metric")] = rec
     write_json(
         folder / "metrics.json",
         {
-            "units": "SI (rad, s); percentages in %",
-            "run_index": tr.run_index,
-            "diverged_at_s": tr.diverged_at,
-            "metrics": per_run,
-            "passed": out.passed,
-            "summary": {k: s.__dict__ for k, s in out.summaries().items()},
+            "runs": tr.batch,
+            "n_diverged": int(div.sum()),
+            "first_diverged_at_s": float(np.min(tr.diverged_at)) if div.any() else None,
+            "divergence": divergence_note(tr.run_index, tr.diverged_at),
+            "units": {file_key(k): si_unit(k) for k in keys if METRIC_INFO.get(k)},
+            "summary": summaries,
             "pass_fraction": {k: p.__dict__ for k, p in out.pass_summaries().items()},
+            "per_run": "metrics.csv, metrics.npz",
         },
     )
     written.append("metrics.json")
 
-    keys = list(per_run)
-    with open(folder / "metrics.csv", "w", newline="") as f:
-        w = csv.writer(f)
-        cols = []
-        for k in keys:
-            info = METRIC_INFO.get(k)
-            cols.append(k.replace("_rad", "_deg") if info is not None and info.unit == "deg" else k)
-        w.writerow(["run", *cols, *[f"pass_{c}" for c in out.passed]])
-        for i in range(tr.batch):
-            row = [int(tr.run_index[i])]
-            for k in keys:
-                info = METRIC_INFO.get(k)
-                v = float(per_run[k][i])
-                row.append(f"{v * (info.scale if info else 1.0):.6g}")
-            row += [int(ok[i]) for ok in out.passed.values()]
-            w.writerow(row)
-    written.append("metrics.csv")
-
-    with open(folder / "trace_run0.csv", "w", newline="") as f:
-        w = csv.writer(f)
-        w.writerow(["t_s", "bank_cmd_deg", "bank_deg", "roll_rate_deg_s", "aileron_deg"])
-        data = np.column_stack(
-            [tr.t, tr.bank_cmd[0] * _DEG, tr.bank[0] * _DEG, tr.roll_rate[0] * _DEG, tr.aileron[0] * _DEG]
-        )
-        w.writerows(np.char.mod("%.6g", data).tolist())
-    with open(folder / "controller_run0.csv", "w", newline="") as f:
-        w = csv.writer(f)
-        w.writerow(["t_s", "bank_reading_deg", "valid", "age_s", "aileron_cmd_deg"])
-        for row in zip(
-            tr.t_ctrl, tr.bank_meas[0] * _DEG, tr.valid[0], tr.age[0], tr.aileron_cmd[0] * _DEG, strict=True
-        ):
-            w.writerow([f"{row[0]:.6g}", f"{row[1]:.6g}", int(row[2]), f"{row[3]:.6g}", f"{row[4]:.6g}"])
-    written += ["trace_run0.csv", "controller_run0.csv"]
+    # traces: the first run and the run the plots show, by run index
+    worst, why = worst_run(out)
+    rows = [0] if worst == 0 else [0, worst]
+    for r in rows:
+        written += _trace_csvs(folder, tr, r)
 
     arrays = {"t_s": tr.t, "t_ctrl_s": tr.t_ctrl, "run_index": tr.run_index, "diverged_at_s": tr.diverged_at}
+    arrays["bank_cmd_rad"] = tr.bank_cmd[0]
     if tr.batch <= MAX_RUNS_IN_NPZ:
+        content = "every run"
         arrays.update(
-            bank_cmd_rad=tr.bank_cmd[0],
             bank_rad=tr.bank,
             roll_rate_rad_s=tr.roll_rate,
             aileron_rad=tr.aileron,
@@ -100,16 +140,34 @@ def write_run_files(
             age_s=tr.age,
             aileron_cmd_rad=tr.aileron_cmd,
         )
-    else:  # large batches: the envelope, not every run
-        keep = ~tr.diverged
-        q = np.array([0, 5, 25, 50, 75, 95, 100])
-        arrays.update(
-            percentiles=q,
-            bank_cmd_rad=tr.bank_cmd[0],
-            bank_percentiles_rad=np.percentile(tr.bank[keep], q, axis=0)
-            if keep.any()
-            else np.zeros((q.size, tr.t.size)),
+    elif (~div).any():
+        content = (
+            f"percentile envelope of bank over the {int((~div).sum())} runs that did not diverge "
+            f"(more than {MAX_RUNS_IN_NPZ} runs: per-run traces not kept)"
         )
-    np.savez_compressed(folder / "trace.npz", **arrays)
+        q = np.asarray(ENVELOPE_PERCENTILES)
+        arrays.update(percentiles=q, bank_percentiles_rad=np.percentile(tr.bank[~div], q, axis=0))
+    else:
+        content = f"no traces: all {tr.batch} runs diverged and there are more than {MAX_RUNS_IN_NPZ}"
+    np.savez(folder / "trace.npz", **arrays)
     written.append("trace.npz")
+
+    write_json(
+        folder / "manifest.json",
+        manifest(
+            scenario_path=sc.path,
+            scenario_sha256=sc.sha256,
+            seed=sc.run.seed,
+            runs=run_indices,
+            command_line=command_line,
+            extra={
+                "title": sc.title,
+                "duration_s": sc.run.duration_s,
+                "base_step_s": sc.run.base_step_s,
+                "trace_npz": content,
+                "plotted_run": {"run": int(tr.run_index[worst]), "picked_as": why},
+            },
+        ),
+    )
+    written.append("manifest.json")
     return written

@@ -1,19 +1,31 @@
 """One table model, four renderings: rich terminal, CSV, JSON, Markdown.
 
 Every command that prints figures builds a :class:`Table` and hands it to
-:func:`render`, so the four output formats stay consistent.
+:func:`render`, so the four output formats stay consistent. A table holds
+two views of the same results:
+
+* ``rows``: display strings (rounded, in display units, "∞", "not settled")
+  for the terminal table and Markdown;
+* ``records``: one dict per row of plain values — numbers in the unit named
+  by the key (``settling_time_s``, ``rms_error_rad``), ``None`` where a value
+  was never reached — for JSON and CSV. CSV writes one value per cell (empty
+  for ``None``), with one header row; several tables are separated by one
+  empty line.
+
+Tables printed to a pipe or file are not wrapped at 80 columns.
 """
 
 from __future__ import annotations
 
 import csv
 import io
-import json
 import math
 from dataclasses import dataclass, field
 from typing import Any
 
-__all__ = ["Table", "render", "FORMATS", "fmt_number", "jsonable"]
+from .outdir import json_text, jsonable
+
+__all__ = ["Table", "render", "FORMATS", "fmt_number", "jsonable", "json_text"]
 
 FORMATS = ("table", "csv", "json", "md")
 
@@ -60,7 +72,10 @@ def render(tables: list[Table], fmt: str, console=None) -> str | None:
         from rich.console import Console
         from rich.table import Table as RichTable
 
-        console = console or Console()
+        if console is None:
+            console = Console()
+            if not console.is_terminal:  # piped or redirected: no wrapping at 80 columns
+                console = Console(width=1000, soft_wrap=True)
         for t in tables:
             rt = RichTable(title=t.title, title_justify="left", header_style="bold")
             for i, c in enumerate(t.columns):
@@ -72,25 +87,10 @@ def render(tables: list[Table], fmt: str, console=None) -> str | None:
                 console.print(f"  {n}", style="dim", highlight=False)
         return None
     if fmt == "csv":
-        buf = io.StringIO()
-        w = csv.writer(buf, lineterminator="\n")
-        for i, t in enumerate(tables):
-            if i:
-                buf.write("\n")
-            w.writerow(["# " + t.title])
-            w.writerow(t.columns)
-            w.writerows(t.rows)
-        return buf.getvalue()
+        return "\n".join(_csv_block(t) for t in tables)
     if fmt == "json":
-        out = []
-        for t in tables:
-            recs = (
-                t.records
-                if t.records is not None
-                else [dict(zip(t.columns, r, strict=False)) for r in t.rows]
-            )
-            out.append({"title": t.title, "rows": recs, "notes": t.notes})
-        return json.dumps(jsonable(out), indent=2, ensure_ascii=False, default=str) + "\n"
+        out = [{"title": t.title, "rows": _records(t), "notes": t.notes} for t in tables]
+        return json_text(out)
     if fmt == "md":
         lines = []
         for t in tables:
@@ -104,31 +104,39 @@ def render(tables: list[Table], fmt: str, console=None) -> str | None:
     raise ValueError(f"unknown format {fmt!r}")
 
 
-def jsonable(obj: Any) -> Any:
-    """Plain JSON values: numpy scalars and arrays unwrapped, infinities as ``"inf"``/``"-inf"``.
+def _records(t: Table) -> list[dict[str, Any]]:
+    if t.records is not None:
+        return t.records
+    return [dict(zip(t.columns, r, strict=False)) for r in t.rows]
 
-    Standard JSON has no infinity (``json.dumps`` would write ``Infinity``,
-    which strict parsers reject); a metric that was never reached is written
-    as the string ``"inf"``, and ``float("inf")`` reads it back. NaN, which
-    no metric should produce, becomes ``null``.
-    """
-    import numpy as np
 
-    if isinstance(obj, dict):
-        return {str(k): jsonable(v) for k, v in obj.items()}
-    if isinstance(obj, (list, tuple)):
-        return [jsonable(v) for v in obj]
-    if isinstance(obj, np.ndarray):
-        return jsonable(obj.tolist())
-    if isinstance(obj, (np.floating, float)):
-        f = float(obj)
-        if math.isnan(f):
-            return None
-        if math.isinf(f):
-            return "inf" if f > 0 else "-inf"
-        return f
-    if isinstance(obj, np.integer):
-        return int(obj)
-    if isinstance(obj, np.bool_):
-        return bool(obj)
-    return obj
+def _cell(v: Any) -> str:
+    """One CSV cell: numbers in full precision, never-reached/NaN empty, booleans true/false."""
+    v = jsonable(v)
+    if v is None:
+        return ""
+    if isinstance(v, bool):
+        return "true" if v else "false"
+    if isinstance(v, float):
+        return repr(v)
+    if isinstance(v, (list, dict)):  # a record that was not flattened: keep it one cell
+        import json
+
+        return json.dumps(v, ensure_ascii=False, separators=(",", ":"))
+    return str(v)
+
+
+def _csv_block(t: Table) -> str:
+    """A table as CSV: one header row (units in the names), one value per cell."""
+    recs = _records(t)
+    cols: list[str] = []
+    for r in recs:
+        cols.extend(k for k in r if k not in cols)
+    if not recs:
+        cols = list(t.columns)
+    buf = io.StringIO()
+    w = csv.writer(buf, lineterminator="\n")
+    w.writerow(cols)
+    for r in recs:
+        w.writerow([_cell(r.get(c)) for c in cols])
+    return buf.getvalue()

@@ -5,7 +5,8 @@ for a set of runs, and compares with MIL-F-8785C: the sample σ of each gust
 channel against the specified stationary σ, and a Welch PSD against the
 analytic one-sided spectrum, in the band where the estimate is reliable (from
 five frequency bins up to a third of the Nyquist frequency, where aliasing of
-the sampled process is small). This is the verification method of Madden,
+the sampled process is small). The table and figure are in
+:mod:`rollrig.sim.report.turbulence_report`. This is the verification method of Madden,
 "Verifying Implementation of the Dryden Turbulence Model" (NASA Langley).
 """
 
@@ -13,19 +14,18 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
-from pathlib import Path
 
 import numpy as np
 from rollrig.sim.disturbance import disturbance_record
 from rollrig.sim.seeding import run_generators
 from rollrig.sim.turbulence import DrydenParams, DrydenTurbulence, analytic_psd, stationary_sigma
 
-from .table import Table, fmt_number
+__all__ = ["TurbulenceCheck", "check_turbulence", "BYTES_PER_RECORD_STEP", "CHANNELS"]
 
-__all__ = ["TurbulenceCheck", "check_turbulence", "turbulence_table", "plot_turbulence"]
+#: peak memory per record and time step of :func:`check_turbulence` (4 channels, with copies)
+BYTES_PER_RECORD_STEP = 160
 
 CHANNELS = ("v_gust", "p_gust", "r_gust")
-_UNITS = {"v_gust": ("m/s", 1.0), "p_gust": ("deg/s", 180 / math.pi), "r_gust": ("deg/s", 180 / math.pi)}
 
 
 @dataclass(frozen=True)
@@ -73,62 +73,3 @@ def check_turbulence(
     band = (omega >= lo) & (omega <= hi)
     err = {ch: float(np.max(np.abs(10 * np.log10(psd_s[ch][band] / psd_a[ch][band])))) for ch in CHANNELS}
     return TurbulenceCheck(params, dt, runs, duration_s, spec, sample, se, omega, psd_s, psd_a, (lo, hi), err)
-
-
-def turbulence_table(chk: TurbulenceCheck) -> Table:
-    p = chk.params
-    t = Table(
-        title=(
-            f"Dryden turbulence (MIL-F-8785C): V = {p.airspeed_mps:.3g} m/s, b = {p.span_m:.3g} m, "
-            f"σ_v = {p.sigma_v_mps:.3g} m/s, σ_w = {p.sigma_w_mps:.3g} m/s, "
-            f"L_v = {p.length_v_m:.4g} m, L_w = {p.length_w_m:.4g} m"
-        ),
-        columns=["channel", "specified σ", "sample σ", "ratio", "PSD max error (dB)"],
-    )
-    t.records = []
-    for ch in CHANNELS:
-        unit, scale = _UNITS[ch]
-        ratio = chk.sigma_sample[ch] / chk.sigma_spec[ch] if chk.sigma_spec[ch] > 0 else math.nan
-        t.add(
-            ch,
-            f"{fmt_number(chk.sigma_spec[ch] * scale)} {unit}",
-            f"{fmt_number(chk.sigma_sample[ch] * scale)} {unit}",
-            f"{ratio:.3f}",
-            f"{chk.max_db_error[ch]:.2f}",
-        )
-        t.records.append(
-            {
-                "channel": ch,
-                "sigma_spec_si": chk.sigma_spec[ch],
-                "sigma_sample_si": chk.sigma_sample[ch],
-                "ratio": ratio,
-                "sigma_standard_error_si": chk.sigma_se[ch],
-                "psd_max_error_db": chk.max_db_error[ch],
-            }
-        )
-    t.notes.append(
-        f"{chk.runs} records of {chk.duration_s:g} s at dt = {chk.dt:g} s; PSD compared over "
-        f"{chk.band[0]:.3g}–{chk.band[1]:.3g} rad/s (Welch estimate, one-sided in ω)."
-    )
-    return t
-
-
-def plot_turbulence(chk: TurbulenceCheck, path: Path) -> None:
-    from .plots import pyplot
-
-    plt = pyplot()
-    fig, axes = plt.subplots(1, 3, figsize=(13, 4), layout="constrained")
-    lo, hi = chk.band
-    for ax, ch in zip(axes, CHANNELS, strict=True):
-        unit, scale = _UNITS[ch]
-        w = chk.omega[1:]
-        ax.loglog(w, chk.psd_sample[ch][1:] * scale**2, color="tab:blue", lw=1.0, label="simulated (Welch)")
-        ax.loglog(w, chk.psd_spec[ch][1:] * scale**2, color="k", lw=1.4, ls="--", label="MIL-F-8785C Dryden")
-        ax.axvspan(lo, hi, color="tab:green", alpha=0.07, lw=0, label="compared band")
-        ax.set_xlabel("ω (rad/s)")
-        ax.set_ylabel(f"PSD ({unit})²/(rad/s)")
-        ax.set_title(f"{ch}: max error {chk.max_db_error[ch]:.2f} dB in band", fontsize=10)
-        ax.grid(alpha=0.3, which="both")
-    axes[0].legend(fontsize=8)
-    fig.savefig(path, dpi=110)
-    plt.close(fig)
