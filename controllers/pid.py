@@ -145,12 +145,10 @@ class PIDController:
         else:
             capture = obs.t - obs.age
             prev = self.prev_capture
-            first = np.isnan(prev)
-            new = fresh & ((capture > prev) | first)
-            gap = capture - prev
-            ok = new & ~first & (gap > 0) & np.isfinite(gap)
-            with np.errstate(invalid="ignore", divide="ignore"):
-                rate = np.where(ok, (bank - self.prev_bank) / gap, self.rate_f)
+            new = fresh & ~(capture <= prev)  # later than the last one, or the first (prev NaN)
+            gap = capture - prev  # NaN on the first reading (prev is NaN): ok is then False
+            ok = new & (gap > 0) & (gap < np.inf)
+            rate = np.where(ok, (bank - self.prev_bank) / np.where(ok, gap, 1.0), self.rate_f)
             self.prev_bank = np.where(new, bank, self.prev_bank)
             # after a loss, restart differencing from the first fresh reading
             self.prev_capture = np.where(new, capture, np.where(fresh, prev, np.nan))

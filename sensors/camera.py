@@ -204,6 +204,24 @@ def _any_positive(x) -> bool:
     return bool(np.any(np.asarray(x) > 0))
 
 
+def _shared_if_equal(cfg: CameraConfig) -> CameraConfig:
+    """Per-run arrays whose values are all equal become floats (same arithmetic, fewer operations)."""
+
+    def fold(obj):
+        new = object.__new__(type(obj))
+        for f in dataclasses.fields(obj):
+            v = getattr(obj, f.name)
+            if isinstance(v, np.ndarray) and v.ndim == 1 and v.size and np.all(v == v[0]):
+                v = float(v[0])
+            object.__setattr__(new, f.name, v)
+        return new
+
+    out = fold(cfg)
+    if cfg.bursts is not None:
+        object.__setattr__(out, "bursts", fold(cfg.bursts))
+    return out
+
+
 def take_rows(cfg: CameraConfig, rows: np.ndarray) -> CameraConfig:
     """The config restricted to batch rows ``rows`` (per-run arrays sliced, scalars kept)."""
 
@@ -359,6 +377,7 @@ class CameraReader:
                         f"{f.name}: allowed: a number or one value per run, shape ({batch},); "
                         f"got shape {np.shape(v)}"
                     )
+        self.cfg = cfg = _shared_if_equal(cfg)
         if cfg.classifier is not None and np.ndim(cfg.range_rad) and np.ptp(cfg.range_rad) > 0:
             raise ValueError("range_rad: allowed: one value for the whole batch when a classifier is set")
         # frame-major (n + 1, batch) arrays; the spare last row (index -1)
@@ -382,6 +401,8 @@ class CameraReader:
         self._weights = np.zeros((width, batch))
         for r, w in enumerate(ws):
             self._weights[width - w.size :, r] = w
+        same = bool(np.all(self._weights == self._weights[:, :1]))
+        self._w_shared = [float(x) for x in self._weights[:, 0]] if same and batch else None
         self.last_value = np.zeros(batch)
         self.last_time = np.full(batch, -np.inf)
         self._rows = np.arange(batch)
@@ -411,17 +432,18 @@ class CameraReader:
             jitter_s=cfg.jitter_s,
             latency_extra_s=None if "latency" not in draws else _c(cfg.latency_jitter_s) * draws["latency"],
         )
-        self.capture_step[rows] = plan.capture_step
-        self.deliver_step[rows] = plan.deliver_step
-        self._latest[:, rows] = plan.latest_delivered(self.tick_steps)
+        cols = slice(None) if m == self.batch else rows  # every run: plain slices (fast)
+        self.capture_step[cols] = plan.capture_step
+        self.deliver_step[cols] = plan.deliver_step
+        self._latest[:, cols] = plan.latest_delivered(self.tick_steps)
         off = frame_offsets(cfg, draws, m, n)
-        self._offset[:n, rows] = np.broadcast_to(np.asarray(off), (m, n)).T
+        self._offset[:n, cols] = np.asarray(off).T if np.ndim(off) == 2 else np.asarray(off).reshape(-1)
         lost = frame_losses(cfg, draws, m)
-        self._kept[:n, rows] = True if lost is None else ~lost.T
-        self._cap_step[:n, rows] = plan.capture_step.T
-        self.capture_time[:n, rows] = plan.capture_step.T * self.dt
-        self.last_value[rows] = 0.0
-        self.last_time[rows] = -np.inf
+        self._kept[:n, cols] = True if lost is None else ~lost.T
+        self._cap_step[:n, cols] = plan.capture_step.T
+        self.capture_time[:n, cols] = plan.capture_step.T * self.dt
+        self.last_value[cols] = 0.0
+        self.last_time[cols] = -np.inf
         self._prev_idx[rows] = -2
         if self._image is not None:
             self._image.restart(rows, rng_for)
@@ -438,9 +460,12 @@ class CameraReader:
         if w.shape[0] == 1:
             bank = self.history[cap, rows]
         else:  # one gather per base step of the exposure (few), newest first
-            bank = w[-1, rows] * self.history[cap, rows]
+            wr = self._w_shared
+            if wr is None:  # exposure per run: each run's own weights
+                wr = [w[i, rows] for i in range(w.shape[0])]
+            bank = wr[-1] * self.history[cap, rows]
             for i in range(1, w.shape[0]):
-                bank += w[-1 - i, rows] * self.history[np.maximum(cap - i, 0), rows]
+                bank += wr[-1 - i] * self.history[np.maximum(cap - i, 0), rows]
         if self._image is not None:  # the reader's reading of the rendered picture replaces the bank
             bank, seen = self._image.read(bank, frames, rows)
         value, ok, conf = read_frames(bank, self.cfg, self._offset[frames, rows], self._centres, rows)
@@ -461,7 +486,7 @@ class CameraReader:
             idx = self._latest[np.minimum(tick, self._latest.shape[0] - 1), self._rows]
         rows = self._rows
         prev = self._prev_idx
-        if np.array_equal(idx, prev):  # same frames as the last tick
+        if (idx == prev).all():  # same frames as the last tick
             value, valid = self._prev_value, self._prev_valid
         else:  # evaluate only the runs whose newest frame changed
             new = np.flatnonzero(idx != prev)

@@ -39,6 +39,12 @@ __all__ = ["LogProblem", "Estimate", "SensorFit", "fit_sensor", "MIN_FRAMES", "s
 
 MIN_FRAMES = 50
 _OUTLIER_SIGMAS = 6.0
+#: residuals smaller than this are never outliers (0.01°, below any instrument-reading
+#: camera's resolution: common practice); without it a reading equal to its reference
+#: flags rounding-level residuals as outliers
+_MIN_OUTLIER_RAD = math.radians(0.01)
+#: the scale the camera model takes (``[sensor] scale``)
+_SCALE_RANGE = (0.5, 2.0)
 
 
 class LogProblem(ValueError):
@@ -188,10 +194,10 @@ def _check(t, ref, y, valid) -> np.ndarray:
         raise LogProblem(f"too short: {n} rows; allowed: at least {MIN_FRAMES} frames")
     if not np.all(np.isfinite(t)):
         row = int(np.flatnonzero(~np.isfinite(t))[0])
-        raise LogProblem(f"time is not a finite number at row {row + 1}; allowed: finite times")
+        raise LogProblem(f"time is not a finite number at row {row + 2}; allowed: finite times")
     d = np.diff(t)
     if np.any(d < 0):
-        row = int(np.flatnonzero(d < 0)[0]) + 2
+        row = int(np.flatnonzero(d < 0)[0]) + 3
         raise LogProblem(f"time goes backwards at row {row}; allowed: non-decreasing time")
     if t[-1] <= t[0]:
         raise LogProblem("time does not advance; allowed: rows spread over time")
@@ -204,6 +210,12 @@ def _check(t, ref, y, valid) -> np.ndarray:
         raise LogProblem(
             f"only {int(usable.sum())} rows have both a valid reading and a reference; "
             "allowed: at least 30 (no overlap)"
+        )
+    frozen = y[usable]
+    if frozen.size and np.ptp(frozen) == 0:
+        raise LogProblem(
+            f"the reading never changes (frozen at {math.degrees(frozen[0]):.4g}°); "
+            "allowed: a log where the reading follows the bank angle"
         )
     return usable
 
@@ -231,10 +243,15 @@ def fit_sensor(
     max_latency_s : s
         Longest latency searched.
 
+    Row numbers in messages count like the CSV reader's: the header is row 1,
+    the first data row is row 2.
+
     Raises
     ------
     LogProblem
-        Too short, time not monotonic, no valid readings, no overlap.
+        Too short, time not monotonic, no valid readings, no overlap, a
+        frozen reading, or a reading that does not follow the reference
+        (fitted scale outside the model's 0.5 … 2).
     """
     t = np.asarray(t, float)
     ref = np.asarray(reference, float)
@@ -283,7 +300,7 @@ def fit_sensor(
     r = y - A @ coef
     sig = 1.4826 * np.median(np.abs(r[inside0] - np.median(r[inside0])))
     sig = max(sig, 1e-12)
-    outlier = np.abs(r - np.median(r[inside0])) > _OUTLIER_SIGMAS * sig
+    outlier = np.abs(r - np.median(r[inside0])) > max(_OUTLIER_SIGMAS * sig, _MIN_OUTLIER_RAD)
     keep0 = inside0 & ~outlier
 
     def ssr(tau: float) -> float:
@@ -309,11 +326,17 @@ def fit_sensor(
     resid = y - A @ coef
     # outliers again, now at the refined lag
     sig = max(1.4826 * np.median(np.abs(resid[m] - np.median(resid[m]))), 1e-12)
-    outlier = inside & (np.abs(resid - np.median(resid[m])) > _OUTLIER_SIGMAS * sig)
+    outlier = inside & (np.abs(resid - np.median(resid[m])) > max(_OUTLIER_SIGMAS * sig, _MIN_OUTLIER_RAD))
     m = inside & ~outlier
     coef, *_ = np.linalg.lstsq(A[m], y[m], rcond=None)
     scale, bias = float(coef[0]), float(coef[1])
     resid = y - A @ coef
+    if not _SCALE_RANGE[0] <= scale <= _SCALE_RANGE[1]:
+        raise LogProblem(
+            f"the fitted scale {scale:.3g} is outside what the camera model takes "
+            f"({_SCALE_RANGE[0]:g} … {_SCALE_RANGE[1]:g}): the reading does not follow the reference; "
+            "allowed: a log whose reading tracks the reference bank"
+        )
     n_in = int(inside.sum())
     p_out = float(outlier.sum() / max(n_in, 1))
     size_out = float(np.abs(resid[outlier]).mean()) if outlier.any() else 0.0

@@ -527,9 +527,10 @@ class Stepper:
         s = self.setup
         n, every, nx = s.n_steps, s.ctrl_every, self._nx
         u = np.asarray(u_cmd, dtype=float)
-        u = np.broadcast_to(u, (self.batch,))
-        bad_u = ~np.isfinite(u)
-        if bad_u.any():
+        if u.shape != (self.batch,):
+            u = np.broadcast_to(u, (self.batch,))
+        if not np.isfinite(u).all():
+            bad_u = ~np.isfinite(u)
             self._diverge(bad_u)
             u = np.where(bad_u, 0.0, u)
         uniform = self._uniform
@@ -579,9 +580,11 @@ class Stepper:
         S[0] = S[steps]
         self._record_steps(kl, steps)
         self.k += steps
-        runaway = self.alive & ~(np.abs(S[0, self._phi]) < s.divergence_rad)
-        if runaway.any():
-            self._diverge(runaway)
+        inside = np.abs(S[0, self._phi]) < s.divergence_rad
+        if not inside.all():
+            runaway = self.alive & ~inside
+            if runaway.any():
+                self._diverge(runaway)
         if self.done:
             return None
         self._obs = self._make_obs()

@@ -52,6 +52,8 @@ SECTIONS = (
     "criteria",
 )
 _D = math.radians
+#: longest scenario title and story (characters): they go into every table, plot and manifest
+MAX_TITLE, MAX_STORY = 200, 10_000
 
 
 @dataclass(frozen=True)
@@ -131,7 +133,7 @@ def load_scenario(path: str | Path) -> Scenario:
     except OSError as exc:
         raise ScenarioError(f"{p}: cannot be read ({exc.strerror})") from None
     try:
-        doc = tomllib.loads(raw.decode("utf-8"))
+        doc = tomllib.loads(raw.decode("utf-8-sig"))  # a byte-order mark some editors write is fine
     except UnicodeDecodeError:
         raise ScenarioError(f"{p}: is not UTF-8 text") from None
     except tomllib.TOMLDecodeError as exc:
@@ -152,10 +154,10 @@ def parse_scenario(doc: dict, *, file: str = "<scenario>", sha256: str = "") -> 
         return None if top.sub(name, required=req) is None else Section(doc[name], file=file, path=name)
 
     about = sec("scenario")
-    title, story = Path(file).stem, ""
+    title, story = Path(file).stem[:MAX_TITLE], ""
     if about is not None:
-        title = about.string("title", title)
-        story = about.string("story", "")
+        title = about.string("title", title, max_len=MAX_TITLE)
+        story = about.string("story", "", max_len=MAX_STORY)
         about.finish()
 
     run = _parse_run(sec("run"))
@@ -267,8 +269,33 @@ def _parse_command(s: Section | None, run: RunSpec, bank0: float) -> CommandSpec
             times = np.concatenate([[0.0], times])
             banks = np.concatenate([[math.degrees(bank0)], banks])
         spec = CommandSpec(tuple(times.tolist()), tuple(np.radians(banks).tolist()))
+    _check_segments(s, spec, run, profile)
     s.finish()
     return spec
+
+
+def _check_segments(s: Section, spec: CommandSpec, run: RunSpec, profile: str) -> None:
+    """Each command change inside the run is held for at least two base steps.
+
+    The step metrics judge a change over the samples until the next change
+    (or the end of the run); fewer than two samples cannot be judged, so
+    ``check`` refuses here what ``run`` could not evaluate.
+    """
+    end = run.n_steps * run.base_step_s  # the last sample's time
+    need = 2 * run.base_step_s
+    times = spec.times_s
+    for i, t0 in enumerate(times):
+        if t0 <= 0 or t0 >= end:
+            continue
+        t1 = min(times[i + 1], end) if i + 1 < len(times) else end
+        if t1 - t0 < need - 1e-9 * max(1.0, end):
+            key = "at_s" if profile == "step" else "times_s"
+            nxt = "the end of the run" if t1 >= end else f"the next change at {t1:g} s"
+            raise s.error(
+                key,
+                f"the change at {t0:g} s is held only {t1 - t0:.6g} s before {nxt}; allowed: each "
+                f"change held ≥ 2 × base_step_s = {need:g} s (and at most {end - need:g} s into the run)",
+            )
 
 
 def _parse_criteria(s: Section | None) -> CriteriaSpec:

@@ -19,7 +19,10 @@ import numpy as np
 
 from .errors import ScenarioError, shorten
 
-__all__ = ["Section", "REQUIRED"]
+__all__ = ["Section", "REQUIRED", "MAX_STRING"]
+
+#: longest string value a scenario key may hold (characters) unless a getter says otherwise
+MAX_STRING = 1000
 
 
 class _Required:
@@ -100,7 +103,10 @@ class Section:
             return value
         rng = self._range_text(key, lo, hi, lo_open, hi_open)
         if isinstance(value, bool) or not isinstance(value, (int, float)):
-            raise self.error(key, f"must be a number, got {type(value).__name__} {value!r}; allowed: {rng}")
+            raise self.error(
+                key,
+                f"must be a number, got {type(value).__name__} {shorten(repr(value), 80)}; allowed: {rng}",
+            )
         try:
             value = float(value)
         except OverflowError:  # TOML integers have no size limit
@@ -126,7 +132,9 @@ class Section:
             if isinstance(value, float) and value.is_integer():
                 value = int(value)
             else:
-                raise self.error(key, f"must be a whole number, got {value!r}; allowed: {rng}")
+                raise self.error(
+                    key, f"must be a whole number, got {shorten(repr(value), 80)}; allowed: {rng}"
+                )
         if (lo is not None and value < lo) or (hi is not None and value > hi):
             raise self.error(key, f"= {value} is out of range; allowed: {rng}")
         return int(value)
@@ -134,21 +142,32 @@ class Section:
     def boolean(self, key: str, default: Any = REQUIRED) -> bool:
         value = self._get(key, default)
         if not isinstance(value, bool):
-            raise self.error(key, f"must be true or false, got {value!r}")
+            raise self.error(key, f"must be true or false, got {shorten(repr(value), 80)}")
         return value
 
-    def string(self, key: str, default: Any = REQUIRED, *, choices: Sequence[str] | None = None) -> str:
+    def string(
+        self,
+        key: str,
+        default: Any = REQUIRED,
+        *,
+        choices: Sequence[str] | None = None,
+        max_len: int = MAX_STRING,
+    ) -> str:
+        """A string (one of ``choices`` if given), at most ``max_len`` characters."""
         value = self._get(key, default)
         if value is None:
             return value
         if not isinstance(value, str):
             allowed = f"; allowed: {', '.join(map(repr, choices))}" if choices is not None else ""
-            raise self.error(key, f"must be a string, got {value!r}{allowed}")
+            raise self.error(key, f"must be a string, got {shorten(repr(value), 80)}{allowed}")
+        if len(value) > max_len:
+            raise self.error(key, f"is {len(value)} characters long; allowed: at most {max_len}")
         if choices is not None and value not in choices:
             hint = difflib.get_close_matches(value, list(choices), n=1)
             did = f" (did you mean {hint[0]!r}?)" if hint else ""
             raise self.error(
-                key, f"= {value!r} is not allowed{did}; allowed: {', '.join(map(repr, choices))}"
+                key,
+                f"= {shorten(repr(value), 80)} is not allowed{did}; allowed: {', '.join(map(repr, choices))}",
             )
         return value
 
@@ -173,7 +192,7 @@ class Section:
             raise self.error(key, "must be a list of numbers (rows of equal length)")
         odd = [v for v in np.asarray(value, dtype=object).ravel() if isinstance(v, (bool, str))]
         if odd:  # numpy would quietly turn "1.5" into 1.5 and true into 1.0
-            raise self.error(key, f"must hold numbers, got {odd[0]!r}")
+            raise self.error(key, f"must hold numbers, got {shorten(repr(odd[0]), 80)}")
         if shape is not None:
             ok = arr.ndim == len(shape) and all(
                 want is None or got == want for got, want in zip(arr.shape, shape, strict=True)

@@ -57,3 +57,23 @@ def write_doc(tmp_path) -> Callable[..., Path]:
         return path
 
     return write
+
+
+@pytest.fixture(scope="session")
+def cli_plain() -> Callable[[list[str]], tuple[int, str, str]]:
+    """Like :func:`cli` without pytest's capture fixture (usable inside hypothesis tests)."""
+    import contextlib
+    import io
+
+    from rollrig.sim.cli.main import main
+
+    def run(args: list[str]) -> tuple[int, str, str]:
+        out, err = io.StringIO(), io.StringIO()
+        with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
+            try:
+                code = main([str(a) for a in args])
+            except SystemExit as exc:
+                code = exc.code if isinstance(exc.code, int) else (0 if exc.code is None else 1)
+        return code, out.getvalue(), err.getvalue()
+
+    return run

@@ -444,12 +444,14 @@ def test_empty_file(cli, write_doc):
     assert_one_line_error(*cli(["check", path]), str(path), "aircraft", "required")
 
 
-def test_check_stops_at_first_bad_file(cli, write_doc):
+def test_check_reports_the_bad_file(cli, write_doc):
     good = write_doc(MINIMAL_SCENARIO, "good.toml")
     bad = write_doc(MINIMAL_SCENARIO.replace("kp = 0.4", "kp = -1"), "bad.toml")
-    code, out, err = cli(["check", good, bad])
-    assert_one_line_error(code, "", err, str(bad), "[controller] kp", "0 ≤ kp ≤ 100")
-    assert f"{good}: ok" in out
+    code, out, err = cli(["check", bad, good])
+    first, summary = err.splitlines()
+    assert_one_line_error(code, "", first + "\n", str(bad), "[controller] kp", "0 ≤ kp ≤ 100")
+    assert summary == "rollrig: 1 of 2 files failed"
+    assert f"{good}: ok" in out  # checked although an earlier file failed
 
 
 # ---------------------------------------------------------------- command-line mistakes

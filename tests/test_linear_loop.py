@@ -287,3 +287,29 @@ def _fields(parts: LoopParts) -> dict:
     from dataclasses import fields
 
     return {f.name: getattr(parts, f.name) for f in fields(parts)}
+
+
+@pytest.mark.parametrize("source", ["gyro", "measurement"])
+def test_camera_delay_margin_found_by_two_methods(source: str) -> None:
+    """Extra camera delay that destabilises the loop: exact-delay formula against Padé poles.
+
+    With the derivative from the gyro the camera delay margin exceeds the delay margin
+    at the aileron command (issue 8); with the camera derivative they are the same thing.
+    """
+    parts = realistic(derivative_source=source, kd_s=0.08, derivative_filter_hz=8.0)
+    m = margins(parts)
+    assert m.closed_loop_stable
+    tau = m.camera_delay_margin_s
+    if source == "gyro":
+        assert tau > 1.05 * m.delay_margin_s  # the gyro path keeps its own, short delay
+    else:
+        assert_allclose(tau, m.delay_margin_s, rtol=1e-9)
+    # second method: the Padé closed loop (order 10) with the extra camera delay added
+    from dataclasses import replace
+
+    def stable(extra: float) -> bool:
+        p = replace(parts, camera_delay_s=parts.camera_delay_s + extra)
+        cl = ct.feedback(rational_loop(p, 10), 1.0)
+        return bool(np.all(np.linalg.eigvals(cl.A).real < 0))
+
+    assert stable(0.97 * tau) and not stable(1.03 * tau)

@@ -114,3 +114,28 @@ def test_run_table_gains_margins(scenario_file: Path, capsys) -> None:
     assert "stability margins" in out[-1]["title"]
     rows = {r["figure"]: r for r in out[-1]["rows"]}
     assert rows["gain_margin_db"]["analytic"] > 6.0 and rows["gain_margin_db"]["empirical"] > 6.0
+
+
+def test_aileron_without_effect_says_the_loop_has_no_gain(tmp_path: Path, capsys) -> None:
+    # issue 9 item 7: one line naming what the user can change, no internal parameter
+    text = SCENARIO.replace('model = "small-uav"\nairspeed_mps = 22.0', "")
+    text = text.replace("[aircraft]\n", "[aircraft]\n" + AILERONLESS)
+    p = tmp_path / "noail.toml"
+    p.write_text(text)
+    assert main(["margins", str(p), "--no-empirical"]) == 2
+    err = capsys.readouterr().err
+    assert "no gain" in err and "l_da_per_s2" in err and err.count("\n") == 1
+    assert "omega" not in err
+
+
+AILERONLESS = """model = "derivatives"
+airspeed_mps = 53.6
+y_beta_mps2 = -13.9
+l_beta_per_s2 = -16.0
+l_p_per_s = -8.4
+l_r_per_s = 2.19
+n_beta_per_s2 = 4.49
+n_p_per_s = -0.35
+n_r_per_s = -0.76
+l_da_per_s2 = 0.0
+"""

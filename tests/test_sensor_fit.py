@@ -236,3 +236,55 @@ def test_cli_refuses_bad_logs_with_one_line(tmp_path, capsys):
     assert main(["fit-sensor", str(nocol), "--no-files"]) == 2
     err = capsys.readouterr().err
     assert "'t_s' not found" in err and "--time-col" in err
+
+
+# ------------------------------------------------------------ degenerate logs (issue 9, item 8)
+def _csv(path, t, ref_deg, read_deg):
+    rows = "".join(
+        f"{a!r},{b!r},{c!r}\n"
+        for a, b, c in zip(*(np.asarray(x, float).tolist() for x in (t, ref_deg, read_deg)), strict=True)
+    )
+    path.write_text("t_s,reference_deg,reading_deg\n" + rows)
+    return path
+
+
+def _swing(n: int = 600):
+    t = np.arange(n) * (1 / 30)
+    return t, 20 * np.sin(0.7 * t) + 5 * np.sin(2.3 * t)
+
+
+def test_frozen_reading_is_refused_with_one_line(tmp_path, capsys):
+    from rollrig.sim.cli.main import main
+
+    t, ref = _swing()
+    log = _csv(tmp_path / "frozen.csv", t, ref, np.full(t.size, 3.5))
+    assert main(["fit-sensor", str(log), "--no-files"]) == 2
+    captured = capsys.readouterr()
+    assert captured.err.count("\n") == 1 and "never changes" in captured.err and "3.5" in captured.err
+
+
+def test_reading_that_does_not_follow_the_reference_is_refused():
+    t, ref = _swing()
+    noise = np.random.default_rng(4).normal(0, 10, t.size)  # unrelated to the reference
+    with pytest.raises(LogProblem, match="scale"):
+        fit_sensor(t, np.radians(ref), np.radians(noise))
+
+
+def test_reading_equal_to_reference_has_no_outliers():
+    t, ref = _swing()
+    fit = fit_sensor(t, np.radians(ref), np.radians(ref))
+    assert fit["outlier_prob"] == 0.0 and not fit.outlier.any()
+    assert abs(fit["latency_s"]) < 1e-3 and abs(fit["scale"] - 1) < 1e-6
+    assert math.degrees(fit["noise_rad"]) < 1e-3  # no noise
+
+
+def test_row_numbers_count_like_the_csv_reader(tmp_path):
+    """Header = row 1, first data row = row 2, in the reader's and the fit's messages alike."""
+    t, ref = _swing(100)
+    t = t.copy()
+    t[59] = t[57]  # data index 59 -> file line 61 goes backwards
+    log = read_log(_csv(tmp_path / "back.csv", t, ref, ref))
+    with pytest.raises(LogProblem, match="backwards at row 61"):
+        fit_sensor(log.t, log.reference, log.reading, log.valid)
+    lines = (tmp_path / "back.csv").read_text().splitlines()
+    assert lines[60].startswith(repr(float(t[59])))  # row 61 is the file's 61st line

@@ -96,11 +96,19 @@ def test_points_in_one_batch_equal_points_alone(scenario):
     assert together[2]["settling_time_s_mean"] != together[0]["settling_time_s_mean"]
 
 
-def test_non_per_run_keys_split_into_groups(scenario):
+def test_structural_keys_split_into_groups(scenario):
+    """Every numeric parameter the core takes per run shares a batch (the engine's
+    PER_RUN list); a shared one such as the camera frame rate splits the points."""
     doc, _ = load_doc(scenario)
-    plan = plan_sweep(str(scenario), doc, ["sensor.noise_deg=0,0.5,1", "sensor.latency_s=0.02,0.1"], runs=2)
-    assert len(plan.chunks) == 3  # one batch per noise level, latencies shared within it
-    assert sorted(len(c["points"]) for c in plan.chunks) == [2, 2, 2]
+    sets = ["sensor.frame_rate_hz=10,20,25", "sensor.noise_deg=0,0.5", "actuator.time_constant_s=0.05,0.1"]
+    plan = plan_sweep(str(scenario), doc, sets, runs=2)
+    assert len(plan.chunks) == 3  # one batch per frame rate
+    assert sorted(len(c["points"]) for c in plan.chunks) == [4, 4, 4]
+    chunk = plan.chunks[0]
+    together = run_chunk(chunk)
+    assert [run_chunk(dict(chunk, points=[p]))[0] for p in chunk["points"]] == together
+    limits = plan_sweep(str(scenario), doc, ["actuator.limit_deg=15,20"], runs=2)
+    assert len(limits.chunks) == 2  # servo limits are read by the metrics as one value: a batch each
 
 
 # ------------------------------------------------------------------ folder and resume

@@ -23,8 +23,9 @@ extra latency is added to the fixed latency, as in the analytic delay
 budget); gyro noise and bias off; no turbulence, gusts or moment bias.
 Kept: latency, frame rate, exposure, camera scale and range, controller rate,
 servo lag and limits. The run starts at a small bank (``excitation_deg``,
-default 1°) with a zero bank command, so at the margins' boundaries the
-servo limits do not bind and the linear answer applies; well beyond a
+default 1°, divided by the member's gain factor so that every member's first
+command is the nominal loop's) with a zero bank command, so at the margins'
+boundaries the servo limits do not bind and the linear answer applies; well beyond a
 boundary the growth saturates into a limit cycle, which the criterion
 below still counts as not settling.
 
@@ -62,9 +63,10 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 from rollrig.controllers.base import Controller
-from rollrig.sim.controller_section import make_controller
-from rollrig.sim.core import LoopSetup, Stepper
-from rollrig.sim.scenario import Scenario, build_setup
+from rollrig.sim.build import build_setup, make_controller
+from rollrig.sim.core import LoopSetup
+from rollrig.sim.driver import Perturbation, run_batch
+from rollrig.sim.scenario import Scenario
 
 __all__ = [
     "LOSS_RESOLUTION",
@@ -92,8 +94,12 @@ class EmpiricalSettings:
         Initial bank of every run (command 0).
     base_step_s : s or None
         Finest base step wanted; the scenario's step is divided by a whole
-        number to reach at most this (``None``: the scenario's own step).
-        It is the delay margin's resolution.
+        number to reach at most this. It is the delay margin's resolution.
+        Default ``None``: the scenario's own step, so that frames are captured
+        at the scenario's instants (a finer grid rounds capture times
+        differently — 30 Hz frames on a 10 ms grid are captured at 0/30/70 ms,
+        on 5 ms at 0/35/65 ms — and measures a slightly different loop;
+        :attr:`EmpiricalMargins.frames_moved` says when that happened).
     window_s : s or None
         Length of each of the two judging windows (``None``: automatic).
     oscillation_rad_s : rad/s or None
@@ -112,12 +118,17 @@ class EmpiricalSettings:
         Largest loss probability tried (< 1).
     loss : bool
         Also search the loss-rate margin.
+    camera : bool
+        Also search the camera-delay margin (extra latency of the camera
+        reading alone) when the scenario has a gyro: a loop taking its
+        derivative from the gyro tolerates more camera delay than delay at
+        the aileron command.
     seed : int
         Seed of the loss draws.
     """
 
     excitation_deg: float = 1.0
-    base_step_s: float | None = 0.005
+    base_step_s: float | None = None
     window_s: float | None = None
     oscillation_rad_s: float | None = None
     candidates: int = 16
@@ -126,6 +137,7 @@ class EmpiricalSettings:
     delay_max_s: float = 2.0
     loss_max: float = 0.98
     loss: bool = True
+    camera: bool = True
     seed: int = 0
 
     def __post_init__(self) -> None:
@@ -154,12 +166,19 @@ class MarginEstimate:
     resolution : float
         Grid quantum of the perturbation (the base step for the delay; 0
         for continuous values).
+    saturation_limited : bool
+        The first failing value drove the servo to a position or rate limit
+        within the first eighth of a judging window (before an instability
+        could have grown there): the failure may be the limit's, not
+        the loop's, so the margin is *at least* ``settles_at`` (a linear
+        analysis may find more).
     """
 
     name: str
     settles_at: float
     fails_at: float
     resolution: float = 0.0
+    saturation_limited: bool = False
 
     @property
     def bounded(self) -> bool:
@@ -203,6 +222,12 @@ class EmpiricalMargins:
         Wall time of the search.
     seed : int
         Seed of the loss draws.
+    camera : MarginEstimate or None
+        Extra camera latency (s) at which the loop still settles (``None``
+        when not searched: no gyro in the scenario).
+    frames_moved : bool
+        The search refined the base step and that moved frame capture
+        instants: it measured a slightly different loop than the scenario's.
     """
 
     gain: MarginEstimate
@@ -218,6 +243,8 @@ class EmpiricalMargins:
     runs_simulated: int
     elapsed_s: float
     seed: int
+    camera: MarginEstimate | None = None
+    frames_moved: bool = False
 
     @property
     def gain_margin_db(self) -> float:
@@ -278,7 +305,7 @@ def settle_verdict(
     bank: np.ndarray,
     rate: np.ndarray,
     window_steps: int,
-    excitation_rad: float,
+    excitation_rad: float | np.ndarray,
     bank_limit_rad: float,
     diverged: np.ndarray,
     band_rad: float | np.ndarray = math.inf,
@@ -291,7 +318,7 @@ def settle_verdict(
         True bank error (command 0) and roll rate on the base grid.
     window_steps : int
         Length of each judging window in base steps (``2·window_steps < n_t``).
-    excitation_rad : rad
+    excitation_rad : rad, float or (batch,)
         Initial bank; the last window's peak must be below it.
     bank_limit_rad : rad
         Crossing it anywhere means not settling.
@@ -374,6 +401,7 @@ class _Bracket:
         self.top = float(first[-1])
         self.extend_to = extend_to
         self.extended = False
+        self.hi_saturated = False
         self.current = self._snap(first)
 
     def _snap(self, values: np.ndarray) -> np.ndarray:
@@ -382,13 +410,14 @@ class _Bracket:
             values = values[(values > self.lo + 1e-12) & (values < self.hi - 1e-12)]
         return np.minimum(values, self.cap)
 
-    def update(self, settled: np.ndarray, n: int) -> None:
+    def update(self, settled: np.ndarray, n: int, saturated: np.ndarray | None = None) -> None:
         vals = self.current
         if vals.size:
             bad = np.nonzero(~settled)[0]
             if bad.size:
                 first_bad = int(bad[0])
                 self.hi = float(vals[first_bad])
+                self.hi_saturated = bool(saturated is not None and saturated[first_bad])
                 if first_bad > 0:
                     self.lo = float(vals[first_bad - 1])
             else:
@@ -412,7 +441,7 @@ class _Bracket:
         self.current = self._snap(_next_candidates(self.lo, self.hi, n, self.geometric))
 
     def estimate(self) -> MarginEstimate:
-        return MarginEstimate(self.name, self.lo, self.hi, self.quantum)
+        return MarginEstimate(self.name, self.lo, self.hi, self.quantum, self.hi_saturated)
 
 
 def _pad(values: np.ndarray, n: int, fill: float) -> np.ndarray:
@@ -492,9 +521,22 @@ def empirical_margins(
         if do_loss
         else None
     )
+    camera = (
+        _Bracket(
+            "camera",
+            np.linspace(0.0, st.delay_max_s, n + 1)[1:],
+            4.0 * st.delay_max_s,
+            False,
+            st.rounds,
+            quantum=dt,
+            cap=_stale_cap(q, dt),
+        )
+        if st.camera and q.gyro is not None
+        else None
+    )
     frac = q.criteria.settle_band_frac
     band_frac = float(frac) if frac is not None else 0.05
-    brackets = [b for b in (gain, delay, loss) if b is not None]
+    brackets = [b for b in (gain, delay, loss, camera) if b is not None]
 
     nominal = True
     runs_simulated = 0
@@ -504,20 +546,33 @@ def empirical_margins(
         g = np.ones(members)
         d = np.zeros(members)
         p = np.zeros(members)
+        c = np.zeros(members)
         offset = 1
         slots = {}
         for b in brackets:
             slots[b.name] = slice(offset, offset + b.current.size)
-            target = {"gain": g, "delay": d, "loss": p}[b.name]
+            target = {"gain": g, "delay": d, "loss": p, "camera": c}[b.name]
             target[offset : offset + n] = _pad(b.current, n, target[0])
             offset += n
         setup = base
         if loss is not None:
-            setup = replace(base, camera=_replace_known(base.camera, dropout_prob=p))
+            setup = replace(setup, camera=_replace_known(setup.camera, dropout_prob=p))
+        if camera is not None:
+            setup = replace(
+                setup,
+                camera=_replace_known(setup.camera, latency_s=np.asarray(base.camera.latency_s, float) + c),
+            )
+        # The loop is linear while the servo limits do not bind, and the verdict only compares
+        # the envelope with itself and with the start: each member starts smaller by its gain
+        # factor (per-run initial state), so its first command equals the nominal loop's.
+        phi_r = phi0 / np.maximum(1.0, g)
+        setup = replace(setup, x0=np.outer(phi_r / phi0, base.x0))
         band = np.full(members, math.inf)
         if loss is not None:
-            band[slots["loss"]] = band_frac * phi0
-        settled = _simulate(setup, ctrl, g, d, st.seed, w_steps, phi0, q.criteria.bank_limit_rad, band)
+            band[slots["loss"]] = band_frac * phi_r[slots["loss"]]
+        settled, saturated = _simulate(
+            setup, ctrl, g, d, st.seed, w_steps, phi_r, q.criteria.bank_limit_rad, band
+        )
         runs_simulated += members
         if rnd == 0 and not settled[0]:
             nominal = False
@@ -525,15 +580,18 @@ def empirical_margins(
         rnd += 1
         for b in brackets:
             if b.current.size:
-                b.update(settled[slots[b.name]][: b.current.size], n)
+                k = b.current.size
+                b.update(settled[slots[b.name]][:k], n, saturated[slots[b.name]][:k])
 
     if not nominal:
         zero = lambda name, res=0.0: MarginEstimate(name, 0.0, 0.0, res)  # noqa: E731
         g_est, d_est = MarginEstimate("gain", 1.0, 1.0), zero("delay", dt)
         l_est = zero("loss") if loss is not None else None
+        c_est = zero("camera", dt) if camera is not None else None
     else:
         g_est, d_est = gain.estimate(), delay.estimate()
         l_est = loss.estimate() if loss is not None else None
+        c_est = camera.estimate() if camera is not None else None
     return EmpiricalMargins(
         gain=g_est,
         delay=d_est,
@@ -548,7 +606,32 @@ def empirical_margins(
         runs_simulated=runs_simulated,
         elapsed_s=time.perf_counter() - t0,
         seed=st.seed,
+        camera=c_est,
+        frames_moved=_frames_moved(sc, dt),
     )
+
+
+def _stale_cap(q: Scenario, dt: float) -> float:
+    """Largest extra camera latency before a PID sees only stale readings (s; inf otherwise).
+
+    Beyond it the PID holds its output instead of closing the loop on the camera,
+    which is not the loop whose margin is sought.
+    """
+    pid = getattr(q.controller, "pid", None)
+    if q.controller.kind != "pid" or pid is None:
+        return math.inf
+    latency = float(np.max(np.asarray(q.camera.latency_s, float)))
+    return max(dt, pid.stale_after_s - latency - 1.0 / float(q.camera.frame_rate_hz) - dt)
+
+
+def _frames_moved(sc: Scenario, dt: float) -> bool:
+    """Whether frame capture instants on a grid of step ``dt`` differ from the scenario's."""
+    dt0 = sc.run.base_step_s
+    if abs(dt - dt0) <= 1e-12 * dt0:
+        return False
+    period = 1.0 / float(sc.camera.frame_rate_hz)
+    k = np.arange(200)
+    return not np.allclose(np.rint(k * period / dt) * dt, np.rint(k * period / dt0) * dt0, rtol=0, atol=1e-9)
 
 
 def _simulate(
@@ -558,21 +641,31 @@ def _simulate(
     delay: np.ndarray,
     seed: int,
     w_steps: int,
-    phi0: float,
+    phi0: float | np.ndarray,
     bank_limit: float,
     band: np.ndarray,
-) -> np.ndarray:
-    stepper = Stepper(setup)
+) -> tuple[np.ndarray, np.ndarray]:
+    """Settle verdicts of a batch and whether each run's servo met a limit in the first window."""
     batch = gain.size
     # One run index for every member: identical random streams (nested losses).
-    obs = stepper.reset(seed, [0] * batch, input_gain=gain, input_delay_s=delay)
-    ctrl.reset(batch)
-    while obs is not None:
-        obs = stepper.advance(ctrl.step(obs))
-    bank = stepper.rec_bank[: stepper.k + 1].T
-    rate = stepper.rec_rate[: stepper.k + 1].T
-    settled, _ = settle_verdict(bank, rate, w_steps, phi0, bank_limit, np.isfinite(stepper.diverged_at), band)
-    return settled
+    tr = run_batch(
+        setup, ctrl, seed=seed, run_indices=[0] * batch, perturbation=Perturbation(gain, delay)
+    ).trace
+    settled, _ = settle_verdict(
+        tr.bank, tr.roll_rate, w_steps, phi0, bank_limit, np.isfinite(tr.diverged_at), band
+    )
+    # the first eighth of a window: a quarter of the slowest oscillation's period
+    return settled, _servo_saturated(tr.aileron[:, : max(w_steps // 8, 2)], setup.actuator, setup.dt)
+
+
+def _servo_saturated(aileron: np.ndarray, actuator, dt: float) -> np.ndarray:
+    """Runs whose servo sat at its position limit or moved at its rate limit (within 0.1 %)."""
+    pos = np.max(np.abs(aileron), axis=1) >= 0.999 * actuator.limit_rad
+    rate = (
+        np.max(np.abs(np.diff(aileron, axis=1)), axis=1, initial=0.0)
+        >= 0.999 * actuator.rate_limit_rad_s * dt
+    )
+    return pos | rate
 
 
 # ------------------------------------------------------------------ roll performance
@@ -621,11 +714,6 @@ def bank_step_time(
     setup = build_setup(q.with_run(duration_s=n * dt))
     target = math.radians(bank_change_deg)
     setup = replace(setup, bank_cmd=np.full(n + 1, overshoot_command * target), x0=np.zeros(q.plant.n_states))
-    stepper = Stepper(setup)
-    obs = stepper.reset(0, [0])
-    ctrl.reset(1)
-    while obs is not None:
-        obs = stepper.advance(ctrl.step(obs))
-    bank = stepper.rec_bank[: stepper.k + 1, 0]
+    bank = run_batch(setup, ctrl, seed=0, run_indices=[0]).trace.bank[0]
     hit = np.nonzero(bank >= target)[0]
     return float(hit[0] * dt) if hit.size else math.inf

@@ -67,6 +67,8 @@ __all__ = [
     "margins",
     "FrequencyResponse",
     "loop_evaluator",
+    "auto_omega",
+    "camera_delay_margin",
 ]
 
 #: Default analysis grid, rad/s: 1e-3 … 1e3, 1000 points per decade.
@@ -214,6 +216,7 @@ class LoopParts:
 class _Path:
     rational: ct.TransferFunction  # SISO, aileron command → controller output
     delay_s: float
+    camera: bool = True  # through the camera reading (False: the gyro path)
 
 
 def _plant_output(parts: LoopParts, index: int) -> ct.StateSpace:
@@ -285,17 +288,27 @@ class _Evaluator:
             )
         if parts.derivative_source == "gyro" and parts.kd_s != 0.0:
             g_p = ct.tf(_plant_output(parts, parts.p_index))
-            self.paths.append(_Path(gyro_c * act * g_p, parts.gyro_delay_s + hold))
+            self.paths.append(_Path(gyro_c * act * g_p, parts.gyro_delay_s + hold, camera=False))
         ref = ct.tf([parts.kp], [1.0])
         if parts.ki_per_s != 0.0:
             ref = ref + ct.tf([parts.ki_per_s], [1.0, 0.0])
         self.forward = _Path(ref * act * g_phi, hold)
 
     def loop(self, w: np.ndarray) -> np.ndarray:
-        total = np.zeros(w.shape, dtype=complex)
+        cam, other = self.split(w)
+        return cam + other
+
+    def split(self, w: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """``L`` as (paths through the camera, other paths), exact delays."""
+        cam = np.zeros(w.shape, dtype=complex)
+        other = np.zeros(w.shape, dtype=complex)
         for path in self.paths:
-            total += _freq(path.rational, w) * np.exp(-1j * w * path.delay_s)
-        return total
+            term = _freq(path.rational, w) * np.exp(-1j * w * path.delay_s)
+            if path.camera:
+                cam += term
+            else:
+                other += term
+        return cam, other
 
     def closed(self, w: np.ndarray, big_l: np.ndarray | None = None) -> np.ndarray:
         if big_l is None:
@@ -502,6 +515,13 @@ class LoopMargins:
         frequency-response data).
     notes : tuple of str
         Cautions about this result (e.g. a crossover may lie outside the data).
+    camera_delay_margin_s : float, s
+        Smallest extra delay of the camera reading alone that makes ``L``
+        touch −1 (:func:`camera_delay_margin`); larger than the delay margin
+        at the aileron command when the derivative comes from the gyro, equal
+        otherwise. ``nan`` for loops not given as :class:`LoopParts`.
+    camera_delay_margin_rad_s : float, rad/s
+        Frequency where it is reached.
     """
 
     gain_margin_db: float
@@ -530,6 +550,8 @@ class LoopMargins:
     omega_range_rad_s: tuple[float, float] = (math.nan, math.nan)
     source: str = "model with exact delays"
     notes: tuple[str, ...] = field(default=())
+    camera_delay_margin_s: float = math.nan
+    camera_delay_margin_rad_s: float = math.nan
 
     @property
     def gain_margin_ok(self) -> bool:
@@ -662,6 +684,46 @@ def auto_omega(ev: Any) -> np.ndarray:
         hi = min(10.0 * x, _GRID_LIMITS[1])
     n = int(math.ceil(math.log10(hi / lo) * _PER_DECADE)) + 1
     return np.logspace(math.log10(lo), math.log10(hi), n)
+
+
+def camera_delay_margin(parts: LoopParts, omega: Any = None) -> tuple[float, float]:
+    """Smallest extra camera delay that makes the loop touch −1, and its frequency.
+
+    With the loop split into the camera paths ``C(jω)`` and the rest ``G(jω)``
+    (the gyro derivative), an extra camera delay ``τ`` gives
+    ``L = C e^{-jωτ} + G``; it passes through −1 where ``|C| = |1 + G|`` and
+    ``τ = (∠C − ∠(−1 − G)) / ω`` (wrapped to [0, 2π/ω)). Without a gyro path
+    this is the delay margin at the aileron command.
+
+    Parameters
+    ----------
+    parts : LoopParts
+    omega : array_like, rad/s, optional
+        Grid (default :func:`auto_omega`).
+
+    Returns
+    -------
+    (float, float)
+        Margin (s; ``inf`` if ``|C|`` never equals ``|1 + G|``) and the frequency
+        where it is reached (rad/s; ``nan`` if none). Meaningful for a stable
+        nominal loop.
+    """
+    ev = _Evaluator(parts)
+    w = auto_omega(ev) if omega is None else np.unique(_as_omega(omega))
+
+    def gap(x: float) -> float:
+        c, g = ev.split(np.array([x]))
+        return math.log(max(abs(c[0]), 1e-300)) - math.log(max(abs(1.0 + g[0]), 1e-300))
+
+    c, g = ev.split(w)
+    vals = np.log(np.maximum(np.abs(c), 1e-300)) - np.log(np.maximum(np.abs(1.0 + g), 1e-300))
+    best, best_w = math.inf, math.nan
+    for x in _roots(gap, w, vals):
+        cx, gx = ev.split(np.array([x]))
+        ang = (np.angle(cx[0]) - np.angle(-1.0 - gx[0])) % (2.0 * math.pi)
+        if ang / x < best:
+            best, best_w = float(ang / x), float(x)
+    return best, best_w
 
 
 def margins(loop: Any, omega: Any = None, pade_order: int = 6) -> LoopMargins:
@@ -803,6 +865,9 @@ def margins(loop: Any, omega: Any = None, pade_order: int = 6) -> LoopMargins:
                 rtol=1e-13,
             )
         )
+    cam_dm = cam_w = math.nan
+    if isinstance(ev, _Evaluator):
+        cam_dm, cam_w = camera_delay_margin(ev.parts, w) if stable else (0.0, math.nan)
     if data:
         notes.append(
             "Frequency-response data: closed-loop stability cannot be read from the data; "
@@ -836,4 +901,6 @@ def margins(loop: Any, omega: Any = None, pade_order: int = 6) -> LoopMargins:
         omega_range_rad_s=(float(w[0]), float(w[-1])),
         source=ev.kind,
         notes=tuple(notes),
+        camera_delay_margin_s=float(cam_dm),
+        camera_delay_margin_rad_s=float(cam_w),
     )

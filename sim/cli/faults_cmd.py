@@ -26,7 +26,7 @@ def add_parser(sub) -> None:
         "(default: itae when the command has a step, else rms_error_rad)",
     )
     p.add_argument("--runs", type=int, help="Monte Carlo runs per variant (overrides [run] runs)")
-    p.add_argument("--seed", type=int, help="run seed (overrides [run] seed)")
+    p.add_argument("--seed", type=int, help="run seed, 0 … 2^63 − 1 (overrides [run] seed)")
     p.add_argument("--format", choices=("table", "csv", "json", "md"), default="table")
     p.add_argument("--out", type=Path, metavar="DIR", help="also write the table and a manifest here")
     p.add_argument("--force", action="store_true", help="replace an existing output folder")

@@ -36,6 +36,7 @@ COMMANDS: dict[str, tuple[str, str] | str] = {
     "margins": ("margins_cmd", "stability margins (analytic and empirical) and handling qualities"),
     "rank-faults": ("faults_cmd", "rank the camera's faults by what each costs the loop"),
     "sweep": ("sweep_cmd", "map metrics over a grid or sample of scenario parameters (resumable)"),
+    "report": ("report_cmd", "one self-contained HTML page of any rollrig output folder"),
     "tune": ("tune_cmd", "search PID gains that stay good across camera degradations"),
     "read-test": (
         "readtest_cmd",

@@ -9,6 +9,7 @@ imported only when this command runs.
 from __future__ import annotations
 
 import argparse
+import hashlib
 from pathlib import Path
 
 from rollrig.sim.cli.common import print_tables, say_written, status_stream
@@ -30,7 +31,16 @@ def add_parser(sub) -> None:
             "(any controller), and MIL-F-8785C ratings of the airframe and the closed loop."
         ),
     )
-    p.add_argument("scenario", metavar="FILE", help="scenario file (TOML)")
+    p.add_argument("scenario", metavar="FILE", nargs="?", help="scenario file (TOML)")
+    p.add_argument(
+        "--frequency-response",
+        metavar="CSV",
+        type=Path,
+        help=(
+            "analyse a measured open-loop response L(jω) instead of a scenario: CSV with "
+            "omega_rad_s or frequency_hz, and magnitude_db + phase_deg or real_rad_per_rad + imag_rad_per_rad"
+        ),
+    )
     p.add_argument(
         "--class",
         dest="aircraft_class",
@@ -77,6 +87,12 @@ def run(args: argparse.Namespace) -> int:
     from rollrig.sim.report.table import render
     from rollrig.sim.scenario import load_scenario
 
+    if (args.scenario is None) == (args.frequency_response is None):
+        raise UserInputError(
+            "rollrig margins: give a scenario FILE or --frequency-response CSV (one of them)"
+        )
+    if args.frequency_response is not None:
+        return _run_frequency_response(args)
     sc = load_scenario(args.scenario)
     if args.seed < 0:
         raise UserInputError(f"--seed {args.seed}: allowed: seed ≥ 0")
@@ -86,7 +102,9 @@ def run(args: argparse.Namespace) -> int:
         check_out_dir(out_dir, args.force)
 
     from rollrig.sim.analysis.empirical import EmpiricalSettings
-    from rollrig.sim.analysis.margins_report import margins_report, margins_tables, write_margin_plots
+    from rollrig.sim.analysis.margins_report import margins_report
+    from rollrig.sim.report.margin_plots import write_margin_plots
+    from rollrig.sim.report.margins_tables import margins_tables
 
     try:
         rep = margins_report(
@@ -132,5 +150,48 @@ def run(args: argparse.Namespace) -> int:
                 "no linear model for this controller: no Bode/Nichols/Nyquist plot",
                 file=status_stream(args.format),
             )
+        say_written(out_dir, args.format)
+    return 0
+
+
+def _run_frequency_response(args: argparse.Namespace) -> int:
+    """``rollrig margins --frequency-response CSV``: the margins report of measured data."""
+    from rollrig.sim.report.outdir import check_out_dir, default_out_dir, manifest, output_folder, write_json
+    from rollrig.sim.report.table import render
+
+    path = args.frequency_response
+    out_dir = None
+    if args.plot or args.out is not None:
+        out_dir = args.out or default_out_dir(f"{path.stem}-margins")
+        check_out_dir(out_dir, args.force)
+    from rollrig.sim.analysis.frequency_response_file import load_frequency_response
+    from rollrig.sim.analysis.linear_loop import margins
+    from rollrig.sim.report.margins_tables import loop_tables
+
+    data = load_frequency_response(path)
+    result = margins(data)
+    tables = loop_tables(result, f"{path.name} (measured open loop)")
+    print_tables(tables, args.format)
+    if out_dir is not None:
+        from rollrig.sim.report.margin_plots import plot_margins
+
+        with output_folder(out_dir, force=args.force) as tmp:
+            write_json(
+                tmp / "manifest.json",
+                manifest(
+                    scenario_path=str(path),
+                    scenario_sha256=hashlib.sha256(path.read_bytes()).hexdigest(),
+                    seed=0,
+                    runs=[],
+                    extra={"command": "margins", "frequency_response": str(path)},
+                ),
+            )
+            write_json(
+                tmp / "margins.json",
+                [{"title": t.title, "rows": t.records, "notes": t.notes} for t in tables],
+            )
+            (tmp / "margins.md").write_text(render(tables, "md"))
+            if args.plot:
+                plot_margins(data, tmp / "margins.png", result=result, title=path.name)
         say_written(out_dir, args.format)
     return 0

@@ -160,7 +160,7 @@ def run(args: argparse.Namespace) -> int:
         if bar is not None:
             bar.stop()
         print(
-            f"rollrig: interrupted; the finished points are kept in {out}/ ; run the same command to go on",
+            f"rollrig: interrupted; the finished points are kept in {out}/; run the same command to go on",
             file=sys.stderr,
         )
         return 130

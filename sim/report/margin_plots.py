@@ -17,7 +17,7 @@ from typing import Any
 
 import numpy as np
 
-__all__ = ["plot_margins"]
+__all__ = ["margin_figure", "plot_margins", "write_margin_plots"]
 
 
 def _save(fig: Any, plt: Any, path: Path) -> Path:
@@ -35,34 +35,8 @@ def _save(fig: Any, plt: Any, path: Path) -> Path:
     return out
 
 
-def plot_margins(
-    loop: Any,
-    path: str | os.PathLike[str],
-    omega: Any = None,
-    *,
-    result: Any = None,
-    title: str = "",
-) -> Path:
-    """Bode (margins marked), Nichols and Nyquist-near-−1 plots on one PNG.
-
-    Parameters
-    ----------
-    loop : LoopParts, python-control system or frequency-response data
-        The loop (see :func:`sim.analysis.linear_loop.margins`).
-    path : str or path-like
-        PNG file to write (atomically: temp file, then rename).
-    omega : array_like, rad/s, optional
-        Grid (default: the one :func:`margins` uses).
-    result : LoopMargins, optional
-        Margins already computed for ``loop`` (computed here if not given).
-    title : str
-        First part of the figure title.
-
-    Returns
-    -------
-    pathlib.Path
-        The written file.
-    """
+def margin_figure(loop: Any, omega: Any = None, *, result: Any = None, title: str = "") -> Any:
+    """The margins figure (matplotlib ``Figure``, Agg); see :func:`plot_margins`."""
     from rollrig.sim.analysis.linear_loop import margins
     from rollrig.sim.report.plots import pyplot
 
@@ -174,4 +148,56 @@ def plot_margins(
         f"bandwidth {m.bandwidth_rad_s:.3g} rad/s, {stable}, "
         f"MIL-F-9490D {'pass' if m.meets_mil_f_9490d else 'fail'}"
     )
-    return _save(fig, plt, Path(path))
+    return fig
+
+
+def plot_margins(
+    loop: Any,
+    path: str | os.PathLike[str],
+    omega: Any = None,
+    *,
+    result: Any = None,
+    title: str = "",
+) -> Path:
+    """Bode (margins marked), Nichols and Nyquist-near-−1 plots on one PNG.
+
+    Parameters
+    ----------
+    loop : LoopParts, python-control system or frequency-response data
+        The loop (see :func:`sim.analysis.linear_loop.margins`).
+    path : str or path-like
+        PNG file to write (atomically: temp file, then rename).
+    omega : array_like, rad/s, optional
+        Grid (default: the one :func:`margins` uses).
+    result : LoopMargins, optional
+        Margins already computed for ``loop`` (computed here if not given).
+    title : str
+        First part of the figure title.
+
+    Returns
+    -------
+    pathlib.Path
+        The written file.
+    """
+    from rollrig.sim.report.plots import pyplot
+
+    fig = margin_figure(loop, omega, result=result, title=title)
+    return _save(fig, pyplot(), Path(path))
+
+
+def write_margin_plots(rep: Any, folder: Path) -> list[Path]:
+    """PNG plots of a scenario's margins report into ``folder`` (when a linear model exists).
+
+    Returns
+    -------
+    list of pathlib.Path
+        Files written.
+    """
+    out = []
+    if rep.parts is not None:
+        out.append(
+            plot_margins(
+                rep.parts, Path(folder) / "margins.png", result=rep.analytic, title=rep.scenario.title
+            )
+        )
+    return out

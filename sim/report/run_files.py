@@ -23,7 +23,7 @@ from .metric_keys import file_key, si_unit
 from .outdir import manifest, write_json
 from .run_tables import _summary_record, divergence_note
 
-__all__ = ["write_run_files", "MAX_RUNS_IN_NPZ", "ENVELOPE_PERCENTILES", "worst_run"]
+__all__ = ["write_run_files", "MAX_RUNS_IN_NPZ", "ENVELOPE_PERCENTILES", "worst_run", "envelope"]
 
 MAX_RUNS_IN_NPZ = 100
 ENVELOPE_PERCENTILES = (0, 5, 25, 50, 75, 95, 100)
@@ -50,10 +50,37 @@ def _column_text(v: np.ndarray, fmt: str = "%.17g") -> list[str]:
 
 
 def _write_csv(path: Path, header: list[str], columns: list[np.ndarray], fmt: str = "%.17g") -> None:
-    cells = [_column_text(np.asarray(c), fmt) for c in columns]
+    """CSV of equal-length columns; float rows are formatted with one ``%`` per row (fast)."""
+    cols = [np.asarray(c) for c in columns]
     lines = [",".join(header)]
-    lines.extend(",".join(row) for row in zip(*cells, strict=True))
+    if all(c.dtype.kind == "f" for c in cols):
+        data = np.column_stack(cols)
+        finite = np.isfinite(data).all(axis=1)
+        row_fmt = ",".join([fmt] * len(cols))
+        body = [row_fmt % tuple(r) for r in data.tolist()]
+        if not finite.all():  # rows holding a never-reached value: empty cells there
+            cells = [_column_text(c, fmt) for c in cols]
+            for i in np.flatnonzero(~finite):
+                body[i] = ",".join(cell[i] for cell in cells)
+        lines.extend(body)
+    else:
+        cells = [_column_text(c, fmt) for c in cols]
+        lines.extend(",".join(row) for row in zip(*cells, strict=True))
     path.write_text("\n".join(lines) + "\n")
+
+
+def envelope(values: np.ndarray, q) -> np.ndarray:
+    """Percentiles over axis 0 of ``(runs, n_t)`` by numpy's linear method, from one sort.
+
+    Equal to ``np.percentile(values, q, axis=0)`` for finite data, at a
+    fraction of its cost for many percentiles (it partitions once per ``q``).
+    """
+    x = np.sort(np.ascontiguousarray(values.T), axis=1)  # (n_t, runs)
+    h = (x.shape[1] - 1) * np.asarray(q, float) / 100.0
+    lo = np.floor(h).astype(int)
+    hi = np.minimum(lo + 1, x.shape[1] - 1)
+    frac = h - lo
+    return (x[:, lo] + frac * (x[:, hi] - x[:, lo])).T
 
 
 def _trace_csvs(folder: Path, tr, row: int) -> list[str]:
@@ -74,7 +101,13 @@ def _trace_csvs(folder: Path, tr, row: int) -> list[str]:
     _write_csv(
         folder / f2,
         ["t_s", "bank_reading_deg", "valid", "age_s", "aileron_cmd_deg"],
-        [tr.t_ctrl, tr.bank_meas[row] * _DEG, tr.valid[row], tr.age[row], tr.aileron_cmd[row] * _DEG],
+        [
+            tr.t_ctrl,
+            tr.bank_meas[row] * _DEG,
+            tr.valid[row].astype(float),
+            tr.age[row],
+            tr.aileron_cmd[row] * _DEG,
+        ],
         fmt="%.9g",
     )
     return [f1, f2]
@@ -146,7 +179,7 @@ def write_run_files(
             f"(more than {MAX_RUNS_IN_NPZ} runs: per-run traces not kept)"
         )
         q = np.asarray(ENVELOPE_PERCENTILES)
-        arrays.update(percentiles=q, bank_percentiles_rad=np.percentile(tr.bank[~div], q, axis=0))
+        arrays.update(percentiles=q, bank_percentiles_rad=envelope(tr.bank[~div], q))
     else:
         content = f"no traces: all {tr.batch} runs diverged and there are more than {MAX_RUNS_IN_NPZ}"
     np.savez(folder / "trace.npz", **arrays)

@@ -432,8 +432,14 @@ def tuned_scenario_text(result, template: str) -> str:
     doc = tomlkit.parse(template)
     if "tune" in doc:
         del doc["tune"]
-    sc = with_gains(result.problem.sc, result.problem.names, result.best)
-    return scenario_to_toml(sc, template=tomlkit.dumps(doc))
+    p = result.problem
+    sc = with_gains(p.sc, p.names, result.best)
+    out = tomlkit.parse(scenario_to_toml(sc, template=tomlkit.dumps(doc)))
+    ctrl = out.get("controller")
+    for name, before in zip(p.names, p.start, strict=True):
+        if ctrl is not None and name in ctrl:  # say where the number came from (replaces a stale comment)
+            ctrl[name].comment(f"rollrig tune (was {before:.4g})")
+    return tomlkit.dumps(out)
 
 
 def write_folder(tmp: Path, result, validation, report: TuneReport, template: str, manifest: dict) -> None:

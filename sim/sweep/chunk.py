@@ -4,7 +4,7 @@ A chunk is plain data (a JSON-like dict, see :func:`run_chunk`): the base
 scenario document, the swept keys and the points' values. Any worker — this
 process, a process pool, a Dask worker — rebuilds the scenarios from it, so
 no user code or live object travels. Points of one chunk differ only in keys
-the core takes per run (:data:`~rollrig.sim.sweep.keys.PER_RUN_KEYS`), so
+the core takes per run (:func:`~rollrig.sim.sweep.keys.signature`), so
 the whole chunk is one batch: point ``i`` occupies members
 ``i·runs … (i+1)·runs − 1``, and every point uses run indices ``0 … runs − 1``
 of the same seed — common random numbers, so neighbouring points differ by
@@ -33,7 +33,7 @@ from typing import Any
 import numpy as np
 from rollrig.sim.scenario import Scenario
 
-from .keys import PER_RUN_KEYS, scenario_with, stack_per_run
+from .keys import scenario_with, stack_per_run
 
 __all__ = ["run_chunk", "point_scenarios", "JUDGES", "display_name"]
 
@@ -79,12 +79,11 @@ def run_chunk(payload: dict[str, Any]) -> list[dict[str, Any]]:
     """
     scs = point_scenarios(payload)
     keys = payload["keys"]
-    per_run = [k for k in keys if k in PER_RUN_KEYS]
     runs = scs[0].run.runs
     if payload["judge"] == "stability":
-        rows = _stability(scs, payload, per_run, runs)
+        rows = _stability(scs, payload, runs)
     else:
-        rows = _criteria(scs, payload, per_run, runs)
+        rows = _criteria(scs, payload, runs)
     out = []
     for (pid, vals), stats in zip(payload["points"], rows, strict=True):
         row = {"point": int(pid)}
@@ -95,21 +94,34 @@ def run_chunk(payload: dict[str, Any]) -> list[dict[str, Any]]:
     return out
 
 
-def _criteria(scs: list[Scenario], payload: dict, per_run: list[str], runs: int) -> list[dict]:
+def _criteria(scs: list[Scenario], payload: dict, runs: int) -> list[dict]:
+    from rollrig.sim.build import build_setup, make_controller
+    from rollrig.sim.driver import run_batch
     from rollrig.sim.metrics import METRIC_INFO
-    from rollrig.sim.runner import run_scenario
+    from rollrig.sim.runner import judge, metric_spec
     from rollrig.sim.stats import pass_fraction, summarize
 
-    sc = stack_per_run(scs, per_run, runs)
+    sc = stack_per_run(scs, runs)
     idx = np.tile(np.arange(runs), len(scs))
-    out = run_scenario(sc, run_indices=idx, allow_code=payload.get("allow_code", False))
-    div = out.trace.diverged
-    all_ok = out.all_passed
+    ctrl = make_controller(sc.controller, allow_code=payload.get("allow_code", False), scenario=sc)
+    # metrics-only recording, chunked by the driver to its memory budget
+    res = run_batch(
+        build_setup(sc),
+        ctrl,
+        seed=sc.run.seed,
+        run_indices=idx,
+        record="metrics",
+        metric_spec=metric_spec(sc),
+    )
+    metrics = res.metrics
+    passed = judge(metrics, sc)
+    div = res.diverged
+    all_ok = np.logical_and.reduce(list(passed.values()))
     rows = []
     for i in range(len(scs)):
         s = slice(i * runs, (i + 1) * runs)
         row: dict[str, Any] = {"n_diverged": int(div[s].sum())}
-        for key, values in out.metrics.items():
+        for key, values in metrics.items():
             info = METRIC_INFO.get(key)
             if info is None or info.kind != "value":
                 continue
@@ -117,7 +129,7 @@ def _criteria(scs: list[Scenario], payload: dict, per_run: list[str], runs: int)
             name, scale = display_name(key)
             for stat in ("mean", "ci95_low", "ci95_high", "p5", "p50", "p95", "worst"):
                 row[f"{name}_{stat}"] = float(getattr(m, stat)) * scale
-        passes = {name: ok[s] for name, ok in out.passed.items()}
+        passes = {name: ok[s] for name, ok in passed.items()}
         passes["all"] = all_ok[s]
         for name, ok in passes.items():
             p = pass_fraction(ok, div[s])
@@ -152,7 +164,7 @@ def _loses_frames(sc: Scenario) -> bool:
     return bool(np.max(cam.dropout_prob) > 0 or bursts)
 
 
-def _stability(scs: list[Scenario], payload: dict, per_run: list[str], runs: int) -> list[dict]:
+def _stability(scs: list[Scenario], payload: dict, runs: int) -> list[dict]:
     from rollrig.sim.analysis.empirical import quiet_scenario, settle_verdict
     from rollrig.sim.controller_section import make_controller
     from rollrig.sim.core import simulate
@@ -162,7 +174,7 @@ def _stability(scs: list[Scenario], payload: dict, per_run: list[str], runs: int
     st = payload["stability"]
     keys = payload["keys"]
     quiet = [_keep_swept(quiet_scenario(sc, st["base_step_s"]), sc, keys) for sc in scs]
-    q = stack_per_run(quiet, per_run, runs)
+    q = stack_per_run(quiet, runs)
     dt = q.run.base_step_s
     w_steps = int(round(st["window_s"] / dt))
     n_steps = 3 * w_steps

@@ -38,20 +38,26 @@ def run_local(chunks: Iterable[dict], on_rows: OnRows) -> None:
 
 
 def run_pool(chunks: list[dict], on_rows: OnRows, workers: int) -> None:
-    """Run chunks on a pool of ``workers`` processes; rows arrive as chunks finish."""
+    """Run chunks on a pool of ``workers`` processes; rows arrive as chunks finish.
+
+    On an interrupt (Ctrl-C, SIGTERM) or an error the workers are terminated
+    at once: their unfinished chunks are simply not recorded.
+    """
     import multiprocessing as mp
-    from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
 
     ctx = mp.get_context("spawn")  # no forked copy of a progress-bar thread or BLAS state
-    ex = ProcessPoolExecutor(max_workers=workers, mp_context=ctx)
+    pool = ctx.Pool(processes=workers)
+    ok = False
     try:
-        pending = {ex.submit(run_chunk, c) for c in chunks}
-        while pending:
-            done, pending = wait(pending, return_when=FIRST_COMPLETED)
-            for fut in done:
-                on_rows(fut.result())
+        for rows in pool.imap_unordered(run_chunk, chunks):
+            on_rows(rows)
+        ok = True
     finally:
-        ex.shutdown(wait=False, cancel_futures=True)
+        if ok:
+            pool.close()
+        else:
+            pool.terminate()
+        pool.join()
 
 
 def connect_dask(address: str, timeout_s: float = DASK_TIMEOUT_S):

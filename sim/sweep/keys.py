@@ -1,6 +1,10 @@
 """Scenario parameters by dotted key: set them in a document, check them, and
 know which can vary from run to run inside one batch.
 
+Points whose scenarios differ only in numeric fields that the stepping core
+takes per run (:data:`rollrig.sim.params.PER_RUN`) share one batch
+(:func:`signature`, :func:`stack_per_run`).
+
 A dotted key names a value of the scenario file: ``sensor.latency_s`` is
 ``latency_s`` in ``[sensor]``, ``sensor.bursts.loss_rate`` is ``loss_rate`` in
 ``[sensor.bursts]``. Values are set on the parsed TOML document (a dict) and
@@ -12,8 +16,9 @@ typed into the file.
 from __future__ import annotations
 
 import copy
+import dataclasses
 import re
-from collections.abc import Iterable, Mapping
+from collections.abc import Mapping
 from dataclasses import replace
 from typing import Any
 
@@ -23,12 +28,11 @@ from rollrig.sim.scenario import Scenario, parse_scenario
 
 __all__ = [
     "NOT_SWEEPABLE",
-    "PER_RUN_KEYS",
     "set_dotted",
     "get_dotted",
     "check_key",
     "scenario_with",
-    "is_per_run",
+    "signature",
     "stack_per_run",
 ]
 
@@ -37,51 +41,6 @@ __all__ = [
 NOT_SWEEPABLE = {
     "run.seed": "the Monte Carlo seed is shared by every point (common random numbers); use --seed",
     "run.runs": "every point runs the same Monte Carlo set; use --runs",
-}
-
-
-def _camera(field: str):
-    def get(sc: Scenario):
-        return getattr(sc.camera, field)
-
-    def put(sc: Scenario, value: np.ndarray) -> Scenario:
-        return replace(sc, camera=replace(sc.camera, **{field: value}))
-
-    return get, put
-
-
-def _bursts_loss():
-    def get(sc: Scenario):
-        return None if sc.camera.bursts is None else sc.camera.bursts.loss_rate
-
-    def put(sc: Scenario, value: np.ndarray) -> Scenario:
-        b = replace(sc.camera.bursts, loss_rate=value)
-        return replace(sc, camera=replace(sc.camera, bursts=b))
-
-    return get, put
-
-
-def _pid(field: str):
-    def get(sc: Scenario):
-        return None if sc.controller.pid is None else getattr(sc.controller.pid, field)
-
-    def put(sc: Scenario, value: np.ndarray) -> Scenario:
-        pid = replace(sc.controller.pid, **{field: value})
-        return replace(sc, controller=replace(sc.controller, pid=pid))
-
-    return get, put
-
-
-#: Dotted keys whose value the stepping core takes per run, as a ``(batch,)``
-#: array: points differing only in these share one batch. Each maps to a
-#: getter and a setter of the parsed :class:`Scenario` (SI values).
-PER_RUN_KEYS = {
-    "sensor.latency_s": _camera("latency_s"),
-    "sensor.dropout_prob": _camera("dropout_prob"),
-    "sensor.bursts.loss_rate": _bursts_loss(),
-    "controller.kp": _pid("kp"),
-    "controller.ki_per_s": _pid("ki_per_s"),
-    "controller.kd_s": _pid("kd_s"),
 }
 
 
@@ -173,23 +132,88 @@ def check_key(doc: dict, key: str, probe: float, *, file: str) -> None:
         raise UserInputError(f"--set {key}={probe:g}: {msg}") from None
 
 
-def is_per_run(keys: Iterable[str]) -> dict[str, bool]:
-    """Whether each key can differ between runs of one batch."""
-    return {k: k in PER_RUN_KEYS for k in keys}
+_SKIP = frozenset({"path", "sha256", "title", "story"})
+#: Per-run in the core but read as one value by the metrics (limits of the
+#: servo): points differing there run in separate batches.
+_SHARED_HERE = frozenset({("ActuatorSpec", "limit_rad"), ("ActuatorSpec", "rate_limit_rad_s")})
 
 
-def stack_per_run(scenarios: list[Scenario], keys: Iterable[str], runs: int) -> Scenario:
-    """One scenario whose per-run keys hold ``(len(scenarios) × runs,)`` arrays.
+def _per_run_fields(obj) -> frozenset[str]:
+    from rollrig.sim.params import PER_RUN
 
-    Point ``i`` occupies batch members ``i·runs … (i+1)·runs − 1``. Every
-    other field is taken from the first scenario (the caller groups points so
-    that they agree there).
+    cls = type(obj).__name__
+    return frozenset(n for n in PER_RUN.get(cls, ()) if (cls, n) not in _SHARED_HERE)
+
+
+def _is_num(v: Any) -> bool:
+    return (isinstance(v, int | float | np.floating | np.integer) and not isinstance(v, bool)) or (
+        isinstance(v, np.ndarray) and v.ndim == 0
+    )
+
+
+def signature(obj: Any) -> Any:
+    """A hashable description of everything a batch must share.
+
+    Numeric fields that the core takes per run (``rollrig.sim.params.PER_RUN``)
+    are left out, so two points' scenarios with equal signatures can run as
+    members of one batch. Scenarios whose controller is not the bundled PID
+    (model-based or user controllers may read the scenario themselves) never
+    share a batch with another point.
     """
-    out = scenarios[0]
-    for key in keys:
-        get, put = PER_RUN_KEYS[key]
-        vals = [get(sc) for sc in scenarios]
-        if any(v is None for v in vals):
-            continue
-        out = put(out, np.repeat(np.asarray(vals, dtype=float), runs))
-    return out
+    if isinstance(obj, Scenario) and obj.controller.kind != "pid":
+        return ("own batch", id(obj))
+    if obj is None or isinstance(obj, str | bool | int | float):
+        return obj
+    if isinstance(obj, np.ndarray):
+        return ("array", obj.shape, obj.dtype.str, obj.tobytes())
+    if dataclasses.is_dataclass(obj) and not isinstance(obj, type):
+        per = _per_run_fields(obj)
+        items = []
+        for f in dataclasses.fields(obj):
+            if f.name in _SKIP:
+                continue
+            v = getattr(obj, f.name)
+            items.append((f.name, "per run" if f.name in per and _is_num(v) else signature(v)))
+        return (type(obj).__name__, tuple(items))
+    if isinstance(obj, tuple | list):
+        return tuple(signature(o) for o in obj)
+    if isinstance(obj, Mapping):
+        return tuple(sorted((str(k), signature(v)) for k, v in obj.items()))
+    return repr(obj)
+
+
+def stack_per_run(scenarios: list[Scenario], runs: int) -> Scenario:
+    """One scenario for a batch of points that share a :func:`signature`.
+
+    Point ``i`` occupies batch members ``i·runs … (i+1)·runs − 1``: every
+    per-run field on which the points differ becomes a ``(len(scenarios) ×
+    runs,)`` array; every other field is the first scenario's (equal in all).
+    """
+    return _stack(scenarios, runs)
+
+
+def _stack(objs: list, runs: int):
+    first = objs[0]
+    if dataclasses.is_dataclass(first) and not isinstance(first, type):
+        per = _per_run_fields(first)
+        changes = {}
+        for f in dataclasses.fields(first):
+            if f.name in _SKIP or not f.init:
+                continue
+            vals = [getattr(o, f.name) for o in objs]
+            if f.name in per and _is_num(vals[0]):
+                if any(v != vals[0] for v in vals[1:]):
+                    changes[f.name] = np.repeat(np.asarray(vals, dtype=float), runs)
+            else:
+                new = _stack(vals, runs)
+                if new is not vals[0]:
+                    changes[f.name] = new
+        return replace(first, **changes) if changes else first
+    if (
+        isinstance(first, tuple)
+        and first
+        and all(isinstance(o, tuple) and len(o) == len(first) for o in objs)
+    ):
+        items = tuple(_stack([o[i] for o in objs], runs) for i in range(len(first)))
+        return items if any(a is not b for a, b in zip(items, first, strict=True)) else first
+    return first

@@ -14,7 +14,7 @@ from rollrig.sim.errors import ScenarioError, UserInputError
 
 from .axes import Axis, design_points, parse_set
 from .chunk import JUDGES
-from .keys import PER_RUN_KEYS, check_key, scenario_with, set_dotted
+from .keys import check_key, scenario_with, set_dotted, signature
 
 __all__ = ["SweepPlan", "plan_sweep", "scenario_hash", "load_doc", "DEFAULT_CHUNK_RUNS"]
 
@@ -134,12 +134,14 @@ def plan_sweep(
         check_key(base, a.key, a.values[0] if a.values else a.low, file=file)
     coords = design_points(axes, design, n_points, design_seed)
     keys = [a.key for a in axes]
+    groups: dict = {}  # points whose scenarios may share a batch
     for i, row in enumerate(coords):
         try:
-            scenario_with(base, dict(zip(keys, row.tolist(), strict=True)), file=file)
+            sc = scenario_with(base, dict(zip(keys, row.tolist(), strict=True)), file=file)
         except ScenarioError as exc:
             vals = ", ".join(f"{k}={v:g}" for k, v in zip(keys, row, strict=True))
             raise UserInputError(f"sweep point {i} ({vals}): {exc}") from None
+        groups.setdefault(signature(sc), []).append(i)
 
     definition = {
         "format": "rollrig-sweep/1",
@@ -160,17 +162,15 @@ def plan_sweep(
     }
     plan = SweepPlan(file=file, doc=base, axes=axes, coords=coords, definition=definition)
     runs_per_point = scenario_with(base, {}, file=file).run.runs
-    chunks = _chunks(plan, runs_per_point, chunk_runs, allow_code)
+    chunks = _chunks(plan, list(groups.values()), runs_per_point, chunk_runs, allow_code)
     return SweepPlan(file=file, doc=base, axes=axes, coords=coords, definition=definition, chunks=chunks)
 
 
-def _chunks(plan: SweepPlan, runs: int, chunk_runs: int, allow_code: bool) -> list[dict]:
-    """Group points that agree on every key the core cannot take per run; cut groups into chunks."""
+def _chunks(
+    plan: SweepPlan, groups: list[list[int]], runs: int, chunk_runs: int, allow_code: bool
+) -> list[dict]:
+    """Cut each group of points that may share a batch into chunks of at most ``chunk_runs`` members."""
     keys = plan.keys
-    fixed = [j for j, k in enumerate(keys) if k not in PER_RUN_KEYS]
-    groups: dict[tuple, list[int]] = {}
-    for i, row in enumerate(plan.coords):
-        groups.setdefault(tuple(row[j] for j in fixed), []).append(i)
     per_chunk = max(1, chunk_runs // runs)
     d = plan.definition
     common: dict[str, Any] = {
@@ -182,7 +182,7 @@ def _chunks(plan: SweepPlan, runs: int, chunk_runs: int, allow_code: bool) -> li
         "allow_code": allow_code,
     }
     out = []
-    for members in groups.values():
+    for members in groups:
         n = math.ceil(len(members) / per_chunk)
         for part in np.array_split(np.asarray(members), n):
             pts = [[int(i), plan.coords[i].tolist()] for i in part]
