@@ -236,6 +236,8 @@ class DelayLineKalman:
         """Apply bank readings captured ``age`` s ago where ``use``; returns which were applied."""
         j = np.rint(np.where(np.isfinite(age), age, 0.0) / self.h).astype(np.int64)
         ok = use & np.isfinite(age) & (j <= self.L) & (j >= 0)
+        if not ok.any():  # most ticks bring no new frame: skip the (no-op) update
+            return ok
         idx = np.where(j == 0, self.cfg.model.phi_index, self.n + np.clip(j, 1, self.L) - 1)
         self.update(idx, y, self.r_cam, ok)
         return ok

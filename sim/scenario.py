@@ -26,7 +26,7 @@ from .controller_section import ControllerSpec, parse_controller
 from .disturbance_section import parse_disturbance
 from .errors import ScenarioError
 from .plant import LinearPlant
-from .section import Section
+from .section import REQUIRED, Section
 from .sensor_section import parse_sensor
 
 __all__ = [
@@ -75,10 +75,13 @@ class CommandSpec:
     """Piecewise-constant bank command: ``banks_rad[i]`` from ``times_s[i]`` on.
 
     ``times_s[0]`` is 0. The initial bank is in :class:`Scenario`'s ``x0``.
+    For a coordinated turn (``profile = "turn"``), ``turn_rate_rad_s`` is the
+    turn rate asked for (rad/s) and the bank follows from it (:func:`turn_bank_rad`).
     """
 
     times_s: tuple[float, ...]
     banks_rad: tuple[float, ...]
+    turn_rate_rad_s: float | None = None
 
     def on_grid(self, t: np.ndarray) -> np.ndarray:
         idx = np.searchsorted(np.asarray(self.times_s), t + 1e-9, side="right") - 1
@@ -173,7 +176,7 @@ def parse_scenario(doc: dict, *, file: str = "<scenario>", sha256: str = "") -> 
             f'{file}: [controller] derivative = "gyro" needs a [sensor.gyro] table; '
             'allowed: "measurement" without a gyro'
         )
-    command = _parse_command(sec("command"), run, x0[plant.phi_index])
+    command = _parse_command(sec("command"), run, x0[plant.phi_index], airspeed_mps=plant.airspeed_mps)
     disturbances = tuple(
         parse_disturbance(
             sec("disturbance"),
@@ -245,11 +248,41 @@ def _parse_actuator(s: Section | None) -> ActuatorSpec:
     return spec
 
 
-def _parse_command(s: Section | None, run: RunSpec, bank0: float) -> CommandSpec:
+#: Standard-rate turn: 3°/s (360° in two minutes), the instrument-flying convention.
+STANDARD_RATE_DEG_S = 3.0
+
+
+def turn_bank_rad(turn_rate_rad_s: float, airspeed_mps: float, g: float = 9.80665) -> float:
+    """Bank of a coordinated level turn: ``tan φ = V·ω/g`` (rad; ``g`` standard gravity, m/s²)."""
+    return math.atan(airspeed_mps * turn_rate_rad_s / g)
+
+
+def _parse_command(s: Section | None, run: RunSpec, bank0: float, *, airspeed_mps: float) -> CommandSpec:
     if s is None:
         return CommandSpec((0.0,), (0.0,))
-    profile = s.string("profile", "hold", choices=("hold", "step", "sequence"))
+    profile = s.string("profile", "hold", choices=("hold", "step", "sequence", "turn"))
     lim = dict(lo=-90.0, hi=90.0)
+    if profile == "turn":
+        at = s.number("at_s", 1.0, lo=0.0, hi=run.duration_s, hi_open=True)
+        start = _D(s.number("from_deg", math.degrees(bank0), **lim))
+        standard = s.boolean("standard_rate", False)
+        if standard and s.has("turn_rate_deg_s"):
+            raise s.error(
+                "turn_rate_deg_s", "cannot be given with standard_rate = true; allowed: one of them"
+            )
+        default = STANDARD_RATE_DEG_S if standard else REQUIRED
+        rate_deg = s.number("turn_rate_deg_s", default, lo=-30.0, hi=30.0)
+        if standard and s.string("direction", "right", choices=("right", "left")) == "left":
+            rate_deg = -rate_deg
+        bank = turn_bank_rad(_D(rate_deg), airspeed_mps)
+        if abs(bank) > _D(60.0):
+            raise s.error(
+                "turn_rate_deg_s",
+                f"= {rate_deg:g} needs {math.degrees(bank):.1f}° of bank at {airspeed_mps:g} m/s; "
+                "allowed: a rate needing at most 60°",
+            )
+        s.finish()
+        return CommandSpec((0.0, at), (start, bank), turn_rate_rad_s=_D(rate_deg))
     if profile == "hold":
         spec = CommandSpec((0.0,), (_D(s.number("bank_deg", 0.0, **lim)),))
     elif profile == "step":

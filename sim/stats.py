@@ -19,6 +19,12 @@ Rules
 * The mean's interval is the Student-t interval
   ``mean +- t_{0.975, n-1} s / sqrt(n)`` (``scipy.stats.t``); percentiles use
   numpy's default linear method.
+* Paired differences (:func:`paired_difference`): the per-run difference of
+  one metric between two variants simulated with the same seed and run
+  indices (common random numbers), summarised like any metric, so its
+  interval is the paired Student-t interval. A pair where either run
+  diverged or either value is infinite is left out and counted in
+  ``n_diverged``.
 * Pass fractions carry the Wilson score interval (Wilson, E. B., 1927,
   "Probable inference, the law of succession, and statistical inference",
   JASA 22:209-212).
@@ -38,6 +44,7 @@ __all__ = [
     "percentile_with_inf",
     "wilson_interval",
     "pass_fraction",
+    "paired_difference",
 ]
 
 
@@ -271,3 +278,44 @@ def pass_fraction(
     k = int(ok.sum())
     low, high = wilson_interval(k, n, confidence)
     return PassSummary(n=n, n_pass=k, fraction=k / n, low=low, high=high)
+
+
+def paired_difference(
+    a: np.ndarray,
+    b: np.ndarray,
+    run_index: np.ndarray,
+    *,
+    excluded_a: np.ndarray | None = None,
+    excluded_b: np.ndarray | None = None,
+    sign: float = 1.0,
+) -> MetricSummary:
+    """Statistics of the per-run difference ``sign·(a − b)`` over usable pairs.
+
+    Parameters
+    ----------
+    a, b : (n_runs,) float
+        One metric for the same runs (same seed and run indices) of two variants.
+    run_index : (n_runs,) int
+    excluded_a, excluded_b : (n_runs,) bool or None
+        Runs of either variant to leave out (e.g. diverged).
+    sign : float
+        ``+1`` or ``−1``; e.g. ``−1`` turns "smaller is worse" into a cost.
+
+    Returns
+    -------
+    MetricSummary
+        Of the differences (larger counted as worse), with the paired 95 %
+        Student-t interval on the mean; ``n_diverged`` counts the pairs left
+        out (either run excluded or either value infinite).
+    """
+    x = np.asarray(a, dtype=float).ravel()
+    y = np.asarray(b, dtype=float).ravel()
+    if x.shape != y.shape:
+        raise ValueError("paired_difference: a and b must have the same length")
+    out = ~np.isfinite(x) | ~np.isfinite(y)
+    for ex in (excluded_a, excluded_b):
+        if ex is not None:
+            out |= np.asarray(ex, dtype=bool).ravel()
+    with np.errstate(invalid="ignore"):
+        diff = np.where(out, 0.0, sign * (x - y))
+    return summarize(diff, run_index, True, out)

@@ -13,7 +13,9 @@ Each random stage draws from its own per-run stream, so removing one fault
 leaves every other fault's draws — and the turbulence — unchanged (common
 random numbers). The per-run difference of a metric between "every fault" and
 "this fault removed" therefore isolates what the fault costs, and its mean
-comes with a paired Student-t interval. Faults are ranked by that cost;
+comes with a paired Student-t interval (:func:`rollrig.sim.stats.paired_difference`,
+shared with ``rollrig compare``); the table is built in
+:mod:`rollrig.sim.report.fault_table`. Faults are ranked by that cost;
 where "removed" and "alone" disagree, faults interact.
 """
 
@@ -30,7 +32,7 @@ from rollrig.sensors.camera import CameraConfig
 from ..metrics import METRIC_INFO
 from ..runner import run_scenario
 from ..scenario import Scenario
-from ..stats import MetricSummary, summarize
+from ..stats import MetricSummary, paired_difference, summarize
 
 __all__ = ["Fault", "FaultEffect", "FaultRanking", "active_faults", "rank_faults"]
 
@@ -156,15 +158,14 @@ def rank_faults(sc: Scenario, metric: str = "rms_error_rad", *, allow_code: bool
             if other is not f:
                 alone_sc = other.remove(alone_sc)
         alone, div_a = _values(alone_sc, metric, allow_code)
-        either = div_e | div_w | ~np.isfinite(every) | ~np.isfinite(without)
-        sign = 1.0 if worse else -1.0
-        cost = np.where(either, 0.0, sign * (every - without))
         effects.append(
             FaultEffect(
                 fault=f,
                 without=summarize(without, runs, worse, div_w),
                 alone=summarize(alone, runs, worse, div_a),
-                cost=summarize(cost, runs, True, either),
+                cost=paired_difference(
+                    every, without, runs, excluded_a=div_e, excluded_b=div_w, sign=1.0 if worse else -1.0
+                ),
             )
         )
     effects.sort(key=lambda e: -e.cost.mean if math.isfinite(e.cost.mean) else math.inf)

@@ -42,6 +42,7 @@ COMMANDS: dict[str, tuple[str, str] | str] = {
         "readtest_cmd",
         "characterise an image reader of the instrument across bank and degradations",
     ),
+    "compare": ("compare_cmd", "put controllers side by side on the same runs (common random numbers)"),
 }
 
 #: signals treated like Ctrl-C: stop, remove partial output, exit 128 + number
