@@ -118,3 +118,23 @@ def test_mistakes_give_one_line_and_exit_2(cli, tmp_path, extra, args, needle):
     code, stdout, stderr = cli(["read-test", str(f), "--no-files", *args])
     assert code == 2
     assert needle in stderr and stderr.count("\n") == 1
+
+
+def test_python_reader_runs_only_with_allow_code(cli, tmp_path, monkeypatch):
+    (tmp_path / "my_reader_mod.py").write_text(
+        "import numpy as np\n"
+        "from rollrig.sensors.readers import MomentReader\n"
+        "_r = MomentReader(64)\n"
+        "def read(images):\n"
+        "    r = _r(images)\n"
+        "    return np.degrees(r.bank_rad) + 1.0, r.valid\n"
+    )
+    monkeypatch.syspath_prepend(str(tmp_path))
+    f = tmp_path / "rt.toml"
+    f.write_text(SMALL + 'reader = "python:my_reader_mod:read"\n[read_test.kinds]\nnoise = [0.0]\n')
+    code, _, err = cli(["read-test", str(f), "--no-files"])
+    assert code == 2 and "--allow-code" in err
+    code, out, err = cli(["read-test", str(f), "--no-files", "--allow-code", "--format", "json"])
+    assert code == 0, err
+    row = json.loads(out)[0]["rows"][0]
+    assert row["bias_deg"] == pytest.approx(1.0, abs=0.05)  # the function's own +1° shows as bias

@@ -101,15 +101,16 @@ def parse_read_test(sec: Section | None) -> ReadTestSpec:
     hi = sec.number("bank_max_deg", 60.0, lo=lo, hi=180.0)
     count = sec.integer("bank_count", 121, lo=1, hi=10_000)
     kinds: dict[str, tuple[float, ...]] = {}
+    names = list(sec.mapping("kinds"))  # the kinds the user named, in their order
     ks = sec.sub("kinds")
     if ks is not None:
-        for name in list(ks._table):
+        for name in names:
             if name in D.KINDS:
                 kinds[name] = tuple(ks.array(name, shape=(None,), lo=_LIMITS[name][0], hi=_LIMITS[name][1]))
         ks.known(D.KINDS)
         ks.finish()
         if not kinds:
-            raise ks.error("", f"names no kind; allowed: {', '.join(D.KINDS)}")
+            raise sec.error("kinds", f"names no kind; allowed: {', '.join(D.KINDS)}")
     else:
         kinds = {k: D.KINDS[k][1] for k in DEFAULT_KINDS}
     ops = []

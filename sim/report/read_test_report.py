@@ -189,6 +189,7 @@ def plot_error_vs_bank(res, path: Path) -> None:
         ax.set_title(kind)
         ax.set_xlabel("true bank (deg)")
         ax.set_yscale("log")
+        ax.set_ylim(bottom=1e-3)  # below a thousandth of a degree is the pixel grid's dither
         ax.grid(alpha=0.3)
         ax.legend(title="strength", fontsize=7, title_fontsize=7)
     axes[0].set_ylabel("RMS reading error (deg)")
