@@ -26,12 +26,16 @@ from __future__ import annotations
 import importlib
 from typing import Any
 
-try:  # installed distribution
-    from importlib.metadata import PackageNotFoundError, version
 
-    __version__ = version("rollrig")
-except PackageNotFoundError:  # pragma: no cover - running from a source tree
-    __version__ = "0.0.0+source"
+def _version() -> str:
+    """The installed distribution's version (importlib.metadata costs ~0.15 s: looked up on first use)."""
+    try:
+        from importlib.metadata import PackageNotFoundError, version
+
+        return version("rollrig")
+    except PackageNotFoundError:  # pragma: no cover - running from a source tree
+        return "0.0.0+source"
+
 
 #: public name -> "module:attribute" (relative to this package)
 _PUBLIC = {
@@ -54,6 +58,9 @@ __all__ = ["__version__", *_PUBLIC]
 
 
 def __getattr__(name: str) -> Any:
+    if name == "__version__":
+        globals()["__version__"] = v = _version()
+        return v
     try:
         target = _PUBLIC[name]
     except KeyError:

@@ -7,6 +7,12 @@ never import from here.
 
 from __future__ import annotations
 
-from rollrig import __version__
-
 __all__ = ["__version__"]
+
+
+def __getattr__(name: str):
+    if name == "__version__":  # looked up lazily: ``rollrig --help`` need not pay for it
+        import rollrig
+
+        return rollrig.__version__
+    raise AttributeError(f"module 'rollrig.sim' has no attribute {name!r}")

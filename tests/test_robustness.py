@@ -197,7 +197,7 @@ def test_stop_signals_write_nothing(tmp_path, sig, code):
     out = tmp_path / "out"
     p = _rollrig(["run", sc, "--out", out])
     _wait_for_handlers(p.pid)  # main() runs (imports done): from here on a signal must be clean
-    time.sleep(0.5)
+    time.sleep(2.0)  # and its imports done
     p.send_signal(sig)
     stdout, stderr = p.communicate(timeout=60)
     # A Ctrl-C that lands while Python is still importing can end the process by

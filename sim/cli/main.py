@@ -20,7 +20,6 @@ import importlib
 import signal
 import sys
 
-from rollrig.sim import __version__
 from rollrig.sim.errors import UserInputError, line
 
 __all__ = ["main", "COMMANDS", "build_parser", "Stopped"]
@@ -63,6 +62,16 @@ class _Parser(argparse.ArgumentParser):
         self.exit(2, line(f"rollrig: error: {message} (see {self.prog} --help)") + "\n")
 
 
+class _Version(argparse.Action):
+    """``--version``: the version is looked up only when asked for."""
+
+    def __call__(self, parser, namespace, values, option_string=None) -> None:
+        import rollrig
+
+        sys.stdout.write(f"rollrig {rollrig.__version__}\n")
+        parser.exit(0)
+
+
 def _module(name: str) -> str:
     entry = COMMANDS[name]
     return entry if isinstance(entry, str) else entry[0]
@@ -85,7 +94,7 @@ def build_parser(argv: list[str] | None = None) -> argparse.ArgumentParser:
         description="Testbed for roll-hold autopilots fed by a camera reading the attitude instrument.",
         epilog="Simulation only: not certified; no substitute for flight test.",
     )
-    parser.add_argument("--version", action="version", version=f"rollrig {__version__}")
+    parser.add_argument("--version", action=_Version, nargs=0, help="show the version and exit")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
     sub.required = True
     chosen = None if argv is None else _chosen(argv)
