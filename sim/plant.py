@@ -11,7 +11,7 @@ roll_accel]`` (m/s, rad/s, rad/s, rad/s²; the channel order of
 :mod:`sim.disturbance`). Lateral models use the states ``(beta, p, r, phi)``
 (rad, rad/s, rad/s, rad); roll-only models use ``(p, phi)``.
 
-Signs (DESIGN.md): bank positive right wing down, roll rate positive rolling
+Signs (DEVELOPERS.md, "Ground rules"): bank positive right wing down, roll rate positive rolling
 right, positive aileron gives a positive rolling moment.
 
 Gusts change the air-relative motion, not the inertial state: a side gust

@@ -157,7 +157,7 @@ def from_dimensional_derivatives(
 # --- Light single-engine airplane --------------------------------------------
 # Nelson, Flight Stability and Automatic Control, 2nd ed. (1998), four-seat
 # single-engine airplane at sea level, u0 = 176 ft/s. Dimensional derivatives
-# as listed in REFERENCES.md (book units: ft, s, rad).
+# as listed in docs/references.md (book units: ft, s, rad).
 _NELSON_U0_FTPS = 176.0
 _NELSON_SPAN_FT = 33.4  # recalled from memory
 _NELSON = {

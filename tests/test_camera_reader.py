@@ -41,7 +41,7 @@ def _drive(cfg: CameraConfig, bank_fn, *, dt=0.001, n_steps=20_000, batch=4, see
 
 def test_delivery_buffer_mean_delay_is_latency_plus_half_period():
     # Mean age of the newest reading at ticks asynchronous to frames = L + T/2
-    # (a sample-and-hold of period T adds T/2 on average; REFERENCES.md "Loop
+    # (a sample-and-hold of period T adds T/2 on average; docs/references.md "Loop
     # margins", zero-order hold adds about T/2 — textbook identity).
     L, rate = 0.05, 30.0
     cam, t, _, valid, age = _drive(CameraConfig(frame_rate_hz=rate, latency_s=L), lambda t: 0 * t)

@@ -32,7 +32,7 @@ def test_white_noise_std():
 
 
 def test_gauss_markov_std_and_correlation_time():
-    # Source: REFERENCES.md "Sensor statistics" — first-order Gauss–Markov
+    # Source: docs/references.md "Sensor statistics" — first-order Gauss–Markov
     # x⁺ = a x + σ√(1−a²) ε, a = exp(−dt/τ) (textbook identity); stationary
     # std σ and autocorrelation exp(−lag/τ).
     sigma, tau, step = 0.5, 1.0, 0.1
@@ -61,7 +61,7 @@ def test_independent_loss_rate_per_run():
 
 @pytest.mark.parametrize("loss_rate, burst", [(0.2, 4.0), (0.05, 1.5), (0.3, 10.0)])
 def test_burst_chain_loss_rate_and_burst_length(loss_rate, burst):
-    # Source: REFERENCES.md — two-state chain (Gilbert–Elliott; Pieper & Voran,
+    # Source: docs/references.md — two-state chain (Gilbert–Elliott; Pieper & Voran,
     # NTIA TM-23-565): stationary loss rate p/(p+r), mean burst length 1/r,
     # burst lengths geometric.
     u = np.random.default_rng(4).random((100, 6000))

@@ -122,7 +122,7 @@ def test_reading_is_bank_at_capture_and_age_is_latency_plus_hold():
     # 20 Hz frames on a 50 Hz controller: ages run from the latency to latency + one frame
     assert ages.min() == pytest.approx(latency, abs=1e-9)
     assert ages.max() < latency + 0.05 + 1e-9
-    # mean age = latency + half a frame period (sample-and-hold; textbook identity, REFERENCES.md
+    # mean age = latency + half a frame period (sample-and-hold; textbook identity, docs/references.md
     # "Sensor statistics"), within the base grid's resolution
     assert ages.mean() == pytest.approx(latency + 0.025, abs=0.006)
 

@@ -1,6 +1,6 @@
 """Analytic margins from a scenario, empirical margins by simulation, and their agreement.
 
-Second methods used here: textbook margin identities (REFERENCES.md "Loop
+Second methods used here: textbook margin identities (docs/references.md "Loop
 margins"), a direct numpy evaluation of the loop formula, a python-control
 step response, hand-built signals with known envelopes, and — the main one —
 the analytic (frequency-domain) margins against the simulated ones.
@@ -29,7 +29,7 @@ from rollrig.sim.analysis.margins_report import margins_report
 from rollrig.sim.errors import ScenarioError
 from rollrig.sim.scenario import parse_scenario
 
-A1, A2 = 8.4, 28.9  # roll-only plant a2/(s(s+a1)): Lp and |L_da| of the light airplane (REFERENCES.md)
+A1, A2 = 8.4, 28.9  # roll-only plant a2/(s(s+a1)): Lp and |L_da| of the light airplane (docs/references.md)
 
 
 def doc(
@@ -147,7 +147,7 @@ def test_second_order_loop_identities_through_the_scenario(
 ) -> None:
     """Roll-only plant, P control, no servo: L = kp a2 / (s (s + a1)) · e^{-sτ}.
 
-    Textbook formula (REFERENCES.md "Loop margins"): for ωn²/(s(s+2ζωn)),
+    Textbook formula (docs/references.md "Loop margins"): for ωn²/(s(s+2ζωn)),
     PM = atan(2ζ/√(√(1+4ζ⁴) − 2ζ²)), ωc = ωn √(√(1+4ζ⁴) − 2ζ²); a pure delay τ
     keeps ωc and removes ωc·τ of phase; delay margin = PM/ωc.
     """
@@ -297,7 +297,7 @@ def test_light_single_modes_rated_in_the_report() -> None:
     sc = parse_scenario(AGREEMENT["light 60 Hz, 20 ms, PID+D"])
     rep = margins_report(sc, aircraft_class="I", category="A", empirical=False)
     m = rep.modes
-    # Nelson light single (REFERENCES.md, derived from the quoted A): roll -8.4328,
+    # Nelson light single (docs/references.md, derived from the quoted A): roll -8.4328,
     # Dutch roll -0.48909 ± 2.33431i, spiral -0.0088172; small differences come from the
     # preset being built from the coefficients, hence rtol 1 %.
     assert_allclose(m.roll_tau_s, 1 / 8.4328, rtol=1e-2)

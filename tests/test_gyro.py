@@ -14,7 +14,7 @@ def _rng_for(batch: int, seed: int = 5):
 
 def test_noise_bias_and_drift_statistics():
     # Drift: first-order Gauss–Markov, x⁺ = a x + σ√(1−a²) ε, a = exp(−dt/τ)
-    # (textbook identity, REFERENCES.md "Sensor statistics").
+    # (textbook identity, docs/references.md "Sensor statistics").
     batch, n, rate = 200, 4000, 50.0
     noise_only = gyro_errors(GyroConfig(rate_hz=rate, noise_rad_s=0.01, bias_rad_s=0.002), n, _rng_for(batch))
     assert_allclose(noise_only.mean(), 0.002, atol=5 * 0.01 / np.sqrt(batch * n))

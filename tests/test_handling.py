@@ -25,7 +25,7 @@ NAMES = ("beta", "p", "r", "phi")
 def nelson_a() -> np.ndarray:
     # Nelson, Flight Stability and Automatic Control, 2nd ed. (1998), light single-engine
     # airplane, lateral example: u0 = 176 ft/s; Y_beta = -45.72 ft/s^2; L_beta = -15.98,
-    # L_p = -8.4, L_r = 2.19; N_beta = 4.49, N_p = -0.35, N_r = -0.76 (REFERENCES.md;
+    # L_p = -8.4, L_r = 2.19; N_beta = 4.49, N_p = -0.35, N_r = -0.76 (docs/references.md;
     # the derivatives are marked "recalled from memory" there). g = 32.17 ft/s^2.
     u0, g = 176.0, 32.17
     return np.array(
@@ -40,7 +40,7 @@ def nelson_a() -> np.ndarray:
 
 def test_nelson_modes() -> None:
     m = identify_modes(nelson_a(), NAMES)
-    # Printed in Nelson (recalled from memory, REFERENCES.md): roll -8.435, spiral -0.0088,
+    # Printed in Nelson (recalled from memory, docs/references.md): roll -8.435, spiral -0.0088,
     # Dutch roll -0.487 +/- 2.335i -> loose tolerance.
     assert_allclose(m.roll_tau_s, 1 / 8.435, rtol=5e-3)  # ~0.119 s
     assert_allclose(m.spiral_lambda, -0.0088, rtol=2e-2)
@@ -61,7 +61,7 @@ def test_nelson_modes() -> None:
 
 @pytest.mark.parametrize("category", ["A", "B", "C"])
 def test_nelson_levels(category: str) -> None:
-    # Expected from the MIL-F-8785C tables (REFERENCES.md), Class I:
+    # Expected from the MIL-F-8785C tables (docs/references.md), Class I:
     # roll: tau 0.119 s <= 1.0 s (Cat A, C) / 1.4 s (Cat B) -> Level 1 (Table VII)
     # spiral: stable -> no divergence -> Level 1 (Table VIII)
     # Dutch roll: zeta 0.205 >= 0.19, zeta*wn 0.489 >= 0.35, wn 2.39 >= 1.0 (Cat A);
@@ -110,7 +110,7 @@ EPS = 1e-9
 @pytest.mark.parametrize(
     "cls,cat,limits",
     [
-        # MIL-F-8785C Table VII (REFERENCES.md), Levels 1/2/3 maximum tau_R (s)
+        # MIL-F-8785C Table VII (docs/references.md), Levels 1/2/3 maximum tau_R (s)
         ("I", "A", (1.0, 1.4, 10.0)),
         ("IV", "A", (1.0, 1.4, 10.0)),
         ("II", "A", (1.4, 3.0, 10.0)),
@@ -137,7 +137,7 @@ def test_table_vii_boundaries(cls: str, cat: str, limits: tuple[float, float, fl
 
 @pytest.mark.parametrize(
     "cat,limits",
-    # MIL-F-8785C (1980) Table VIII (REFERENCES.md): minimum time to double (s);
+    # MIL-F-8785C (1980) Table VIII (docs/references.md): minimum time to double (s);
     # the older edition's 12/12/4 and 20/12/4 are NOT used.
     [("A", (12.0, 8.0, 4.0)), ("B", (20.0, 8.0, 4.0)), ("C", (12.0, 8.0, 4.0))],
 )
@@ -158,7 +158,7 @@ def test_table_viii_boundaries(cat: str, limits: tuple[float, float, float]) -> 
 @pytest.mark.parametrize(
     "cls,cat,row",
     [
-        # MIL-F-8785C Table VI Level 1 minimum (zeta, zeta*wn, wn) (REFERENCES.md)
+        # MIL-F-8785C Table VI Level 1 minimum (zeta, zeta*wn, wn) (docs/references.md)
         ("I", "A", (0.19, 0.35, 1.0)),
         ("IV", "A", (0.19, 0.35, 1.0)),
         ("II", "B", (0.08, 0.15, 0.4)),
@@ -184,7 +184,7 @@ def test_table_vi_level1_boundaries(cls: str, cat: str, row: tuple[float, float,
 
 
 def test_table_vi_levels_2_and_3() -> None:
-    # MIL-F-8785C Table VI: Level 2 (0.02, 0.05, 0.4); Level 3 (0, none, 0.4) (REFERENCES.md)
+    # MIL-F-8785C Table VI: Level 2 (0.02, 0.05, 0.4); Level 3 (0, none, 0.4) (docs/references.md)
     wn = 5.0  # zeta*wn = 5 zeta, so the zeta minimum governs
     assert rate_dutch_roll(0.02, wn, "I", "A") == L2
     assert rate_dutch_roll(0.02 - EPS, wn, "I", "A") == L3
@@ -212,7 +212,7 @@ def test_phi_beta_correction() -> None:
 
 @pytest.mark.parametrize(
     "cat,angle,limits",
-    # MIL-F-8785C Table IXa, Class I (REFERENCES.md): bank change, time (s) Levels 1/2/3
+    # MIL-F-8785C Table IXa, Class I (docs/references.md): bank change, time (s) Levels 1/2/3
     [("A", 60.0, (1.3, 1.7, 2.6)), ("B", 60.0, (1.7, 2.5, 3.4)), ("C", 30.0, (1.3, 1.8, 2.6))],
 )
 def test_table_ixa_boundaries(cat: str, angle: float, limits: tuple[float, float, float]) -> None:

@@ -18,7 +18,7 @@ from rollrig.sim.analysis.linear_loop import (
 from rollrig.sim.report.margin_plots import plot_margins
 
 # A roll-only plant phi/da = a2 / (s (s + a1)), states (p, phi): p' = -a1 p + a2 da.
-A1, A2 = 8.4, 28.9  # 1/s, 1/s^2 — Lp and |L_da| of the light airplane (REFERENCES.md, Nelson)
+A1, A2 = 8.4, 28.9  # 1/s, 1/s^2 — Lp and |L_da| of the light airplane (docs/references.md, Nelson)
 
 
 def roll_plant(a1: float = A1, a2: float = A2) -> dict:
@@ -49,7 +49,7 @@ def realistic(**kw) -> LoopParts:
 
 def textbook_pm_wc(zeta: float, wn: float) -> tuple[float, float]:
     # Open loop wn^2/(s(s+2 zeta wn)): PM = atan(2 zeta / sqrt(sqrt(1+4 zeta^4) - 2 zeta^2)),
-    # wc = wn sqrt(sqrt(1+4 zeta^4) - 2 zeta^2)  [textbook formula, REFERENCES.md "Loop margins"]
+    # wc = wn sqrt(sqrt(1+4 zeta^4) - 2 zeta^2)  [textbook formula, docs/references.md "Loop margins"]
     r = math.sqrt(math.sqrt(1.0 + 4.0 * zeta**4) - 2.0 * zeta**2)
     return math.degrees(math.atan(2.0 * zeta / r)), wn * r
 
@@ -61,7 +61,7 @@ def test_second_order_loop_matches_textbook_formula(zeta: float, wn: float) -> N
     pm, wc = textbook_pm_wc(zeta, wn)
     assert_allclose(m.phase_margin_deg, pm, rtol=1e-9)
     assert_allclose(m.gain_crossover_rad_s, wc, rtol=1e-9)
-    # Delay margin = PM (rad) / wc  [textbook identity, REFERENCES.md]
+    # Delay margin = PM (rad) / wc  [textbook identity, docs/references.md]
     assert_allclose(m.delay_margin_s, math.radians(pm) / wc, rtol=1e-9)
     assert m.gain_margin_db == math.inf and math.isnan(m.phase_crossover_rad_s)
     assert m.closed_loop_stable
@@ -152,7 +152,7 @@ def test_pure_delay_lowers_phase_margin_by_wc_tau(tau: float) -> None:
         math.degrees(m0.gain_crossover_rad_s * tau),
         atol=1e-7,
     )
-    # the controller hold counts as dt/2 of delay  [textbook identity, REFERENCES.md]
+    # the controller hold counts as dt/2 of delay  [textbook identity, docs/references.md]
     m2 = margins(realistic(camera_delay_s=0.0, controller_dt_s=2 * tau))
     assert_allclose(m2.phase_margin_deg, m1.phase_margin_deg, atol=1e-9)
     assert_allclose(m1.delay_margin_camera_multiple, m1.delay_margin_s / tau, rtol=1e-12)
@@ -213,7 +213,7 @@ def test_disk_margin_not_above_classical(parts: LoopParts) -> None:
 
 
 def test_mil_f_9490d_pass_and_fail() -> None:
-    # MIL-F-9490D §3.1.3.6: 6 dB and 45 deg  [pub, REFERENCES.md]
+    # MIL-F-9490D §3.1.3.6: 6 dB and 45 deg  [pub, docs/references.md]
     # second-order loop: PM crosses 45 deg at zeta = 0.42 (PM 44.9) / 0.43 (PM 45.9)
     assert textbook_pm_wc(0.42, 2.0)[0] < 45 < textbook_pm_wc(0.43, 2.0)[0]
     ok = margins(second_order_loop(0.43, 2.0, camera_delay_s=0.0))

@@ -41,7 +41,7 @@ def _split(ev: np.ndarray) -> tuple[complex, float, float]:
 
 
 def test_light_single_modes_vs_derived_values() -> None:
-    # REFERENCES.md [derived]: A from Nelson's dimensional derivatives gives
+    # docs/references.md [derived]: A from Nelson's dimensional derivatives gives
     # -8.4328, -0.48909 ± 2.33431i, -0.0088172. Those used g = 32.2 ft/s²; we
     # use 9.80665 m/s² (= 32.174 ft/s²), which moves the spiral root by 0.08 %,
     # hence rtol 1e-3.
@@ -118,7 +118,7 @@ def test_light_single_adverse_yaw() -> None:
 @pytest.mark.parametrize("plant", _all_presets(), ids=lambda p: p.name)
 def test_sign_convention(plant: LinearPlant) -> None:
     ip, iphi = plant.p_index, plant.phi_index
-    # DESIGN.md: positive aileron gives positive rolling moment -> positive p-dot.
+    # Sign convention (DEVELOPERS.md): positive aileron gives positive rolling moment -> positive p-dot.
     assert plant.b_control[ip, 0] > 0
     # phi-dot = p at level trim (theta0 = 0): phi row is the unit vector on p.
     expected = np.zeros(plant.n_states)

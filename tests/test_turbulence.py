@@ -2,7 +2,7 @@
 
 Verification follows Madden (NASA Langley, "Verifying Implementation of the
 Dryden Turbulence Model"): sample σ within a few % of the specified σ, and a
-Welch PSD on the analytic spectrum (REFERENCES.md, Turbulence).
+Welch PSD on the analytic spectrum (docs/references.md, Turbulence).
 """
 
 from __future__ import annotations
@@ -33,7 +33,7 @@ from rollrig.sim.turbulence import (
 )
 
 V, B = 50.0, 10.0  # airspeed (m/s) and span (m) of a light airplane / large UAV
-W20_MOD = 30.0 * 1852.0 / 3600.0  # 30 kt, MIL-F-8785C "moderate" (REFERENCES.md)
+W20_MOD = 30.0 * 1852.0 / 3600.0  # 30 kt, MIL-F-8785C "moderate" (docs/references.md)
 
 
 def simulate(params: DrydenParams, dt: float, n: int, runs, seed: int = 7, block: int = 4096):
@@ -60,7 +60,7 @@ def autocorr(params: DrydenParams, dt: float, lags: int) -> np.ndarray:
 
 # ----------------------------------------------------------------- intensities and lengths
 def test_intensity_table():
-    # MIL-F-8785C low-altitude W20: light 15 kt, moderate 30 kt, severe 45 kt (REFERENCES.md).
+    # MIL-F-8785C low-altitude W20: light 15 kt, moderate 30 kt, severe 45 kt (docs/references.md).
     assert_allclose(KT_MPS, 0.514444444, rtol=1e-9)  # 1 kt = 1852 m / 3600 s (exact definition)
     assert_allclose(
         [INTENSITY_W20_MPS[k] for k in ("light", "moderate", "severe")],
@@ -72,7 +72,7 @@ def test_intensity_table():
 @pytest.mark.parametrize(
     "h_ft, lv_ft, lw_ft, ratio",
     [
-        # Hand-computed from the MIL-F-8785C low-altitude formulas (REFERENCES.md):
+        # Hand-computed from the MIL-F-8785C low-altitude formulas (docs/references.md):
         # d = 0.177 + 0.000823 h; L_v = h / d^1.2; L_w = h; σ_v/σ_w = d^-0.4.
         (100.0, 505.17, 100.0, 1.71585),  # d = 0.2593
         (500.0, 944.66, 500.0, 1.23624),  # d = 0.5885
@@ -139,7 +139,7 @@ def sigma_p_closed_form(p: DrydenParams) -> float:
 @pytest.mark.parametrize("params", [PSD_PARAMS, dryden_params(800 * FT_M, W20_MOD, V, B)])
 def test_stationary_sigma_matches_the_spectra(params):
     sig = stationary_sigma(params)
-    # One-sided-in-ω normalisation σ² = ∫₀^∞ Φ dω (MIL-F-8785C; REFERENCES.md), checked by
+    # One-sided-in-ω normalisation σ² = ∫₀^∞ Φ dω (MIL-F-8785C; docs/references.md), checked by
     # numerical quadrature of the analytic spectra (second method) ...
     quad = {
         k: math.sqrt(scipy.integrate.quad(lambda w, k=k: analytic_psd(params, w)[k], 0, np.inf, limit=400)[0])

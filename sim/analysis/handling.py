@@ -88,7 +88,7 @@ _TABLE_VIII_SPIRAL_T2_MIN: dict[str, tuple[float, float, float]] = {
 
 # MIL-F-8785C Table VI: Dutch roll minimum (ζ, ζωn rad/s, ωn rad/s).
 # Level 1 rows for Cat A Classes II/III and Cat C Classes II-L/III (ωn 0.4) are
-# recalled from memory; the other rows are quoted in REFERENCES.md.
+# recalled from memory; the other rows are quoted in docs/references.md.
 _TABLE_VI_LEVEL1: dict[tuple[str, str], tuple[float, float, float]] = {
     ("A", "I"): (0.19, 0.35, 1.0),
     ("A", "IV"): (0.19, 0.35, 1.0),

@@ -20,7 +20,7 @@ Pieces taken from the scenario
   scenario's frame and tick schedule on the base grid
   (:func:`schedule_stats`): half a frame period when frames and ticks are
   not locked (a zero-order hold at period ``T`` adds about ``T/2`` of delay,
-  REFERENCES.md "Loop margins"), less when they are (e.g. 25 Hz frames
+  docs/references.md "Loop margins"), less when they are (e.g. 25 Hz frames
   arriving on 50 Hz ticks: 10 ms, not 20 ms, because the controller's own
   hold then adds nothing the frame hold has not). Capture-time jitter has
   zero mean and is left out.

@@ -7,7 +7,7 @@
 Requirements used for the ratings
 ---------------------------------
 * Loop margins: MIL-F-9490D (1975) §3.1.3.6 — at least ±6 dB of gain margin
-  and 45° of phase margin (REFERENCES.md "Loop margins"). The empirical gain
+  and 45° of phase margin (docs/references.md "Loop margins"). The empirical gain
   margin is rated against the same 6 dB.
 * Bare airframe: MIL-F-8785C Tables VII (roll-mode time constant), VIII
   (spiral time to double, 1980 values) and VI (Dutch roll ζ, ζωn, ωn), for the
