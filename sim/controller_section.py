@@ -20,7 +20,6 @@ the user's code, so loading it needs the command line's explicit permission
 from __future__ import annotations
 
 import math
-import tomllib
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -28,7 +27,7 @@ from typing import Any
 from rollrig.controllers.pid import PIDConfig
 
 from .errors import ScenarioError
-from .section import Section
+from .section import Section, read_toml_file
 
 __all__ = [
     "ControllerSpec",
@@ -87,14 +86,7 @@ def load_controller_file(
 ) -> ControllerSpec:
     """Read a controller file (one ``[controller]`` table) for a scenario's base step."""
     p = Path(path)
-    try:
-        doc = tomllib.loads(p.read_text(encoding="utf-8"))
-    except FileNotFoundError:
-        raise ScenarioError(f"{p}: no such controller file") from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise ScenarioError(f"{p}: cannot be read as UTF-8 text ({exc})") from None
-    except tomllib.TOMLDecodeError as exc:
-        raise ScenarioError(f"{p}: is not valid TOML: {exc}") from None
+    _, _, doc = read_toml_file(p, "controller file")
     top = Section(doc, file=str(p), path="top level")
     sec = top.sub("controller", required=True)
     top.finish()

@@ -12,7 +12,6 @@ from __future__ import annotations
 
 import hashlib
 import math
-import tomllib
 from dataclasses import dataclass, replace
 from pathlib import Path
 
@@ -26,7 +25,7 @@ from .controller_section import ControllerSpec, parse_controller
 from .disturbance_section import parse_disturbance
 from .errors import ScenarioError
 from .plant import LinearPlant
-from .section import REQUIRED, Section
+from .section import REQUIRED, Section, read_toml_file
 from .sensor_section import parse_sensor
 
 __all__ = [
@@ -129,18 +128,7 @@ class Scenario:
 def load_scenario(path: str | Path) -> Scenario:
     """Read and validate a scenario file."""
     p = Path(path)
-    try:
-        raw = p.read_bytes()
-    except FileNotFoundError:
-        raise ScenarioError(f"{p}: no such scenario file") from None
-    except OSError as exc:
-        raise ScenarioError(f"{p}: cannot be read ({exc.strerror})") from None
-    try:
-        doc = tomllib.loads(raw.decode("utf-8-sig"))  # a byte-order mark some editors write is fine
-    except UnicodeDecodeError:
-        raise ScenarioError(f"{p}: is not UTF-8 text") from None
-    except tomllib.TOMLDecodeError as exc:
-        raise ScenarioError(f"{p}: is not valid TOML: {exc}") from None
+    raw, _, doc = read_toml_file(p)
     return parse_scenario(doc, file=str(p), sha256=hashlib.sha256(raw).hexdigest())
 
 

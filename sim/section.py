@@ -12,14 +12,16 @@ from __future__ import annotations
 
 import difflib
 import math
+import tomllib
 from collections.abc import Iterable, Mapping, Sequence
+from pathlib import Path
 from typing import Any
 
 import numpy as np
 
 from .errors import ScenarioError, shorten
 
-__all__ = ["Section", "REQUIRED", "MAX_STRING"]
+__all__ = ["Section", "REQUIRED", "MAX_STRING", "read_toml_file"]
 
 #: longest string value a scenario key may hold (characters) unless a getter says otherwise
 MAX_STRING = 1000
@@ -248,3 +250,28 @@ class Section:
         if lo is None and hi is None:
             return "any finite number"
         return f"{left}{key}{right}"
+
+
+def read_toml_file(path: str | Path, what: str = "scenario file") -> tuple[bytes, str, dict]:
+    """Read a TOML file: ``(raw bytes, text, document)``, or one line naming what is wrong.
+
+    One place for every file rollrig reads as TOML (scenarios, controller
+    files, tuning and read-test files): a missing or unreadable file, text
+    that is not UTF-8 (a byte-order mark is fine) and invalid TOML each give a
+    :class:`~rollrig.sim.errors.ScenarioError` naming the file.
+    """
+    p = Path(path)
+    try:
+        raw = p.read_bytes()
+    except FileNotFoundError:
+        raise ScenarioError(f"{p}: no such {what}") from None
+    except OSError as exc:
+        raise ScenarioError(f"{p}: cannot be read ({exc.strerror})") from None
+    try:
+        text = raw.decode("utf-8-sig")  # a byte-order mark some editors write is fine
+        doc = tomllib.loads(text)
+    except UnicodeDecodeError:
+        raise ScenarioError(f"{p}: is not UTF-8 text") from None
+    except tomllib.TOMLDecodeError as exc:
+        raise ScenarioError(f"{p}: is not valid TOML: {exc}") from None
+    return raw, text, doc

@@ -41,7 +41,7 @@ import numpy as np
 from rollrig.sensors import image_degrade as D
 from rollrig.sensors.instrument import MAX_SIZE_PX, MIN_SIZE_PX, Instrument
 
-from ..section import Section
+from ..section import Section, read_toml_file
 from ..seeding import run_generators
 
 __all__ = [
@@ -401,7 +401,6 @@ class ReadTestFile:
 def load_read_test(path: str) -> ReadTestFile:
     """Read a scenario with an optional ``[read_test]`` section, or a file holding only ``[read_test]``."""
     import hashlib
-    import tomllib
     from pathlib import Path
 
     import tomlkit
@@ -410,19 +409,7 @@ def load_read_test(path: str) -> ReadTestFile:
     from ..scenario import parse_scenario
 
     p = Path(path)
-    try:
-        raw = p.read_bytes()
-    except FileNotFoundError:
-        raise ScenarioError(f"{p}: no such file") from None
-    except OSError as exc:
-        raise ScenarioError(f"{p}: cannot be read ({exc.strerror})") from None
-    try:
-        text = raw.decode("utf-8")
-        doc = tomllib.loads(text)
-    except UnicodeDecodeError:
-        raise ScenarioError(f"{p}: is not UTF-8 text") from None
-    except tomllib.TOMLDecodeError as exc:
-        raise ScenarioError(f"{p}: is not valid TOML: {exc}") from None
+    raw, text, doc = read_toml_file(p, "file")
     rt = doc.pop("read_test", None)
     sec = None if rt is None else Section(rt, file=str(p), path="read_test")
     spec = parse_read_test(sec)

@@ -46,7 +46,6 @@ tunes the three PID gains over ±50 % of its camera's latency and noise).
 from __future__ import annotations
 
 import hashlib
-import tomllib
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 
@@ -54,7 +53,7 @@ import numpy as np
 
 from ..errors import ScenarioError, UserInputError
 from ..scenario import Scenario, parse_scenario
-from ..section import Section
+from ..section import Section, read_toml_file
 
 __all__ = [
     "Axis",
@@ -163,19 +162,7 @@ def load_tuning(path: str | Path) -> tuple[Scenario, TuneSpec, str]:
         the file's text (for writing the tuned file back).
     """
     p = Path(path)
-    try:
-        raw = p.read_bytes()
-    except FileNotFoundError:
-        raise ScenarioError(f"{p}: no such scenario file") from None
-    except OSError as exc:
-        raise ScenarioError(f"{p}: cannot be read ({exc.strerror})") from None
-    try:
-        text = raw.decode("utf-8")
-        doc = tomllib.loads(text)
-    except UnicodeDecodeError:
-        raise ScenarioError(f"{p}: is not UTF-8 text") from None
-    except tomllib.TOMLDecodeError as exc:
-        raise ScenarioError(f"{p}: is not valid TOML: {exc}") from None
+    raw, text, doc = read_toml_file(p, "scenario file")
     tune = doc.pop("tune", {})
     sc = parse_scenario(doc, file=str(p), sha256=hashlib.sha256(raw).hexdigest())
     return sc, parse_tune(tune, sc, file=str(p)), text
