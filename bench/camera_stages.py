@@ -8,43 +8,28 @@ Run: ``PYTHONPATH=. python bench/camera_stages.py``.
 from __future__ import annotations
 
 import math
+import sys
 import time
+from pathlib import Path
 
 import numpy as np
 from rollrig.controllers.pid import PIDConfig, PIDController
-from rollrig.sensors.camera import BurstConfig, CameraConfig, ClassifierConfig
+from rollrig.sensors.camera import CameraConfig
 from rollrig.sensors.gyro import GyroConfig
 from rollrig.sim import presets
 from rollrig.sim.actuator import ActuatorSpec
 from rollrig.sim.core import LoopSetup, simulate
 
+sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "tests"))
+from helpers import ALL_STAGES_CAMERA, DRIFTING_GYRO  # noqa: E402
+
 D = math.radians
 BASE = CameraConfig(
     frame_rate_hz=30, latency_s=0.05, noise_rad=D(0.3), quantization_rad=D(0.5), dropout_prob=0.02
 )
-ALL = CameraConfig(
-    frame_rate_hz=30,
-    latency_s=0.05,
-    noise_rad=D(0.3),
-    quantization_rad=D(0.5),
-    dropout_prob=0.02,
-    jitter_s=0.003,
-    exposure_s=0.02,
-    latency_jitter_s=0.01,
-    wander_rad=D(0.3),
-    wander_time_s=2.0,
-    bias_rad=D(0.5),
-    scale=1.01,
-    outlier_prob=0.01,
-    outlier_rad=D(15.0),
-    beyond_range="saturate",
-    range_rad=D(60.0),
-    classifier=ClassifierConfig(D(1.0), 4.0, "weighted"),
-    bursts=BurstConfig(0.05, 3.0),
-)
-GYRO = GyroConfig(
-    rate_hz=100.0, noise_rad_s=D(0.05), bias_rad_s=D(0.1), bias_drift_rad_s=D(0.02), bias_drift_time_s=100.0
-)
+# The all-stages camera and drifting gyro are the ones the replay tests use.
+ALL = ALL_STAGES_CAMERA
+GYRO = DRIFTING_GYRO
 
 
 def setup(camera: CameraConfig, gyro: GyroConfig | None) -> LoopSetup:

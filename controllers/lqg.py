@@ -62,7 +62,7 @@ import numpy as np
 import scipy.linalg
 
 from .base import Observation
-from .model import LoopModel, SignalLoss, per_run
+from .model import LoopModel, SignalLoss, discrete, per_run
 
 __all__ = ["LQGConfig", "DelayLineKalman", "LQGController", "tick_maps", "lqr_gain"]
 
@@ -136,12 +136,8 @@ def tick_maps(model: LoopModel, h: float, substeps: int):
     ``E x(t) + f u + noise`` with noise covariance ``Q`` per unit intensity.
     """
     n, s = model.n, substeps
-    a, b = np.asarray(model.a, float), np.asarray(model.b, float)
-    aug = np.zeros((n + 1, n + 1))
-    aug[:n, :n], aug[:n, n] = a, b
-    e = scipy.linalg.expm(aug * h)
-    ph, gh = e[:n, :n], e[:n, n]
-    _, qh = _van_loan(a, np.asarray(model.accel_column, float), h)
+    ph, gh = discrete(model, h)
+    _, qh = _van_loan(np.asarray(model.a, float), np.asarray(model.accel_column, float), h)
     c = np.zeros(n)
     c[model.phi_index] = 1.0
     # x_i = ph^i x0 + g_i u + sum_{m<=i} ph^(i-m) w_m,  i = 0..s

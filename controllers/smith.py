@@ -91,7 +91,10 @@ class SmithPredictor:
         c = self.cfg
         if self._dt is None:
             self._prepare(obs.dt)
-            longest = max(float(np.max(self.delay)) if self.delay is not None else 0.0, c.pid.stale_after_s)
+            longest = max(
+                float(np.max(self.delay)) if self.delay is not None else 0.0,
+                float(np.max(c.pid.stale_after_s)),
+            )
             self.n_buf = int(math.ceil(longest / obs.dt)) + 2
             self.buf = np.zeros((self.n_buf, self.batch))  # model bank at past ticks, newest at [tick % n]
             self.tick = 0

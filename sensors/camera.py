@@ -41,7 +41,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from . import stages
-from .stages import quantize
+from .stages import column, quantize
 from .timing import FramePlan, n_frames_for, plan_frames
 
 __all__ = [
@@ -194,12 +194,6 @@ def _at(value, rows=None):
     return a if rows is None else a[rows]
 
 
-def _c(value):
-    """A scalar or per-run parameter as a float or a ``(batch, 1)`` column."""
-    a = np.asarray(value, dtype=float)
-    return float(a) if a.ndim == 0 else a[:, None]
-
-
 def _any_positive(x) -> bool:
     return bool(np.any(np.asarray(x) > 0))
 
@@ -295,8 +289,8 @@ def frame_offsets(cfg: CameraConfig, draws: dict[str, np.ndarray], batch: int, n
         o = draws["outliers"]
         parts.append(stages.outlier_offsets(o[:, 0], o[:, 1], cfg.outlier_prob, cfg.outlier_rad))
     if not parts:
-        return _c(cfg.bias_rad)
-    total = parts[0] + _c(cfg.bias_rad)
+        return column(cfg.bias_rad)
+    total = parts[0] + column(cfg.bias_rad)
     for p in parts[1:]:
         total += p
     return total
@@ -430,7 +424,9 @@ class CameraReader:
             latency_s=cfg.latency_s,
             jitter_eps=draws.get("jitter"),
             jitter_s=cfg.jitter_s,
-            latency_extra_s=None if "latency" not in draws else _c(cfg.latency_jitter_s) * draws["latency"],
+            latency_extra_s=(
+                None if "latency" not in draws else column(cfg.latency_jitter_s) * draws["latency"]
+            ),
         )
         cols = slice(None) if m == self.batch else rows  # every run: plain slices (fast)
         self.capture_step[cols] = plan.capture_step
@@ -490,10 +486,10 @@ class CameraReader:
             value, valid = self._prev_value, self._prev_valid
         else:  # evaluate only the runs whose newest frame changed
             new = np.flatnonzero(idx != prev)
-            value, valid = self._prev_value.copy(), self._prev_valid.copy()
             if new.size == rows.size:
                 value, valid, _ = self._evaluate(idx, rows)
             else:
+                value, valid = self._prev_value.copy(), self._prev_valid.copy()
                 value[new], valid[new], _ = self._evaluate(idx[new], new)
         self._prev_idx, self._prev_value, self._prev_valid = idx, value, valid
         self.last_value = np.where(valid, value, self.last_value)

@@ -15,7 +15,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .stages import gauss_markov
+from .stages import column, gauss_markov
 
 __all__ = ["GyroConfig", "RateGyro", "gyro_errors"]
 
@@ -45,14 +45,6 @@ class GyroConfig:
     bias_drift_time_s: float = 100.0
 
 
-def _col(v, rows: np.ndarray | None = None):
-    """A scalar or per-run parameter, restricted to ``rows``, as a ``(m, 1)`` column (or a float)."""
-    a = np.asarray(v, dtype=float)
-    if a.ndim == 0:
-        return float(a)
-    return np.ascontiguousarray(a if rows is None else a[rows])[:, None]
-
-
 def _sel(v, rows: np.ndarray | None):
     a = np.asarray(v, dtype=float)
     return a if a.ndim == 0 or rows is None else np.ascontiguousarray(a[rows])
@@ -79,14 +71,14 @@ def gyro_errors(
 
     total = None
     if np.any(np.asarray(cfg.noise_rad_s) > 0):
-        total = _col(cfg.noise_rad_s, rows) * normals("gyro.noise")
+        total = column(_sel(cfg.noise_rad_s, rows)) * normals("gyro.noise")
     if np.any(np.asarray(cfg.bias_drift_rad_s) > 0):
         eps = normals("gyro.drift")
         drift = gauss_markov(
             eps, _sel(cfg.bias_drift_rad_s, rows), _sel(cfg.bias_drift_time_s, rows), 1.0 / cfg.rate_hz
         )
         total = drift if total is None else total + drift
-    bias = _col(cfg.bias_rad_s, rows)
+    bias = column(_sel(cfg.bias_rad_s, rows))
     if total is None:
         return bias if np.ndim(bias) == 0 else np.broadcast_to(bias, (bias.shape[0], n)).copy()
     return total + bias
@@ -115,12 +107,23 @@ class RateGyro:
         self.value = np.zeros(batch)
         self._rows = np.arange(batch)
 
-    def start(self, rows: np.ndarray, rng_for: Callable[[str], Sequence[np.random.Generator]]) -> None:
-        """(Re)start the runs ``rows`` at their local step 0 (``rng_for`` gives their generators)."""
+    def start(
+        self,
+        rows: np.ndarray,
+        rng_for: Callable[[str], Sequence[np.random.Generator]],
+        rate: np.ndarray | None = None,
+    ) -> None:
+        """(Re)start the runs ``rows`` at their local step 0 (``rng_for`` gives their generators).
+
+        With ``rate`` (those runs' roll rate at step 0) the sample due at step 0 is taken.
+        """
         rows = np.asarray(rows, dtype=np.int64)
         err = gyro_errors(self.cfg, self.n_samples, rng_for, rows)
         self._err[:, rows] = np.asarray(err).T if np.ndim(err) else err
-        self.value[rows] = 0.0
+        value = self.value.copy()  # a new array: an observation already handed out keeps its rate
+        j0 = self.sample_at[0]
+        value[rows] = rate + self._err[j0, rows] if rate is not None and j0 >= 0 else 0.0
+        self.value = value
 
     def sample(self, k: int, rate: np.ndarray) -> None:
         """Take a sample at local step ``k`` (every run on the same clock) if one is due."""

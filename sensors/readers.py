@@ -48,6 +48,7 @@ __all__ = [
     "CallableReader",
     "ReaderLoadError",
     "to_gray",
+    "wrap_angle",
 ]
 
 
@@ -84,7 +85,8 @@ def to_gray(images: np.ndarray) -> np.ndarray:
     return a.astype(np.float32, copy=False)
 
 
-def _wrap(a):
+def wrap_angle(a):
+    """Angles wrapped to ``[-π, π)`` (rad)."""
     return (np.asarray(a) + np.pi) % (2.0 * np.pi) - np.pi
 
 
@@ -273,13 +275,19 @@ class RobustReader:
         with np.errstate(divide="ignore", invalid="ignore"):
             match = y0 / (np.linalg.norm(ring, axis=1) * self._tmpl_norm)
         match = np.nan_to_num(match)
-        bank = _wrap(sky_dir - np.pi / 2.0 - rot)
+        bank = wrap_angle(sky_dir - np.pi / 2.0 - rot)
         conf = np.clip(np.minimum(strength, match), 0.0, 1.0)
         valid = (2.0 * half >= self.min_contrast) & (conf >= self.min_confidence)
         return Reading(bank, valid, conf)
 
 
 # ------------------------------------------------------------------ user readers
+def _from_degrees(bank_deg: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """A user reader's banks (deg) wrapped to rad (non-finite ones read 0), and which were finite."""
+    finite = np.isfinite(bank_deg)
+    return wrap_angle(np.radians(np.where(finite, bank_deg, 0.0))), finite
+
+
 class OnnxReader:
     """A user's ONNX model run by onnxruntime on the CPU.
 
@@ -371,11 +379,8 @@ class OnnxReader:
                 c = np.asarray(res[1], dtype=np.float64)
                 if c.size == n:
                     conf[i : i + n] = c.reshape(n)
-        finite = np.isfinite(bank)
-        valid = finite & (conf >= 0.5)
-        return Reading(
-            _wrap(np.radians(np.where(finite, bank, 0.0))), valid, np.clip(np.nan_to_num(conf), 0, 1)
-        )
+        bank_rad, finite = _from_degrees(bank)
+        return Reading(bank_rad, finite & (conf >= 0.5), np.clip(np.nan_to_num(conf), 0, 1))
 
 
 class CallableReader:
@@ -414,7 +419,6 @@ class CallableReader:
             raise ReaderLoadError(
                 f"{self.spec}: returned {bank.size} readings for {b} images; allowed: one per image"
             )
-        finite = np.isfinite(bank)
-        return Reading(
-            _wrap(np.radians(np.where(finite, bank, 0.0))), valid & finite, (valid & finite).astype(float)
-        )
+        bank_rad, finite = _from_degrees(bank)
+        ok = valid & finite
+        return Reading(bank_rad, ok, ok.astype(float))

@@ -41,7 +41,7 @@ __all__ = [
 ]
 
 
-def _col(x) -> np.ndarray | float:
+def column(x) -> np.ndarray | float:
     """A per-run parameter as a ``(batch, 1)`` column; scalars pass through."""
     a = np.asarray(x, dtype=float)
     return a[:, None] if a.ndim == 1 else float(a)
@@ -49,7 +49,7 @@ def _col(x) -> np.ndarray | float:
 
 def white_noise(eps: np.ndarray, std) -> np.ndarray:
     """Independent noise ``std·ε``; ``eps`` standard normal ``(batch, n)``."""
-    return _col(std) * eps
+    return column(std) * eps
 
 
 def first_order_recursion(u: np.ndarray, a: float, y_prev: np.ndarray | float | None = None) -> np.ndarray:
@@ -99,7 +99,7 @@ def gauss_markov(eps: np.ndarray, std, tau_s, step_s: float) -> np.ndarray:
         return x
     x[..., 0] = eps[..., 0]  # stationary start
     x = first_order_recursion(x, a)
-    return _col(std) * x
+    return column(std) * x
 
 
 def outlier_offsets(u_hit: np.ndarray, u_size: np.ndarray, prob, size) -> np.ndarray:
@@ -109,11 +109,11 @@ def outlier_offsets(u_hit: np.ndarray, u_size: np.ndarray, prob, size) -> np.nda
     a magnitude uniform on ``[size/2, 3·size/2]`` (mean ``size``).
     ``u_hit`` and ``u_size`` are uniform draws on ``[0, 1)``.
     """
-    hit = u_hit < _col(prob)
+    hit = u_hit < column(prob)
     # u_size in [0,1): sign from the first half, magnitude from the position
     sign = np.where(u_size < 0.5, -1.0, 1.0)
     mag = 0.5 + 2.0 * np.where(u_size < 0.5, u_size, u_size - 0.5)
-    return np.where(hit, sign * mag * _col(size), 0.0)
+    return np.where(hit, sign * mag * column(size), 0.0)
 
 
 def quantize(x: np.ndarray, step) -> np.ndarray:
@@ -200,7 +200,7 @@ def limit_range(x: np.ndarray, range_, mode: str) -> tuple[np.ndarray, np.ndarra
 
 def independent_losses(u: np.ndarray, prob) -> np.ndarray:
     """Frames lost independently with probability ``prob`` (float or (batch,))."""
-    return u < _col(prob)
+    return u < column(prob)
 
 
 def burst_chain_probs(loss_rate, mean_burst_frames) -> tuple[np.ndarray, np.ndarray]:

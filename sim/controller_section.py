@@ -217,15 +217,5 @@ def _load_policy(sec: Section, rate_hz: float):
     return net, layout, meta, str(path.resolve())
 
 
-def _write_policy(spec: ControllerSpec, arrays: bool) -> dict[str, Any]:
-    """``[controller]`` table of a policy controller (the file by absolute path)."""
-    return {"kind": "policy", "rate_hz": float(spec.rate_hz), "file": spec.policy[3]}
-
-
-from .scenario_writer import register_controller_writer  # noqa: E402
-
-register_controller_writer("policy", _write_policy)  # so policy scenarios can be written back
-
-
 # Built here before sim.build existed; kept importable from here.
 from .build import make_controller  # noqa: E402

@@ -310,7 +310,6 @@ class Stepper:
         has_sig = bool(self._signals)
         self._w_lo = 0 if has_sig else f0
         self._w_hi = (f0 + ns) if ns else (nx if has_sig else 0)
-        self._bd_sig = bd
         self._W = None
         self._w0 = 0
 
@@ -410,10 +409,10 @@ class Stepper:
         self.alive[rows] = True
         self.diverged_at[rows] = np.inf
         self.camera.start(rows, rng_for)
-        if self.gyro is not None:
-            self.gyro.start(rows, rng_for)
-        # records at local step 0
         X = S[0]
+        if self.gyro is not None:
+            self.gyro.start(rows, rng_for, X[self._p, rows])
+        # records at local step 0
         self.rec_bank[0, rows] = X[self._phi, rows]
         if self.rec_ail is not None:
             self.rec_ail[0, rows] = X[nx, rows]
@@ -421,13 +420,6 @@ class Stepper:
             self.rec_rate[0, rows] = X[self._p, rows]
         if self.rec_states is not None:
             self.rec_states[0, rows] = X[:nx, rows].T
-        if self.gyro is not None:
-            g = self.gyro
-            j0 = g.sample_at[0]
-            if j0 >= 0:
-                value = g.value.copy()
-                value[rows] = X[self._p, rows] + g._err[j0, rows]
-                g.value = value
         # disturbance inputs of the current block, from these rows' new clocks
         if self._W is not None:
             pos = self.k - self._w0
@@ -561,12 +553,13 @@ class Stepper:
             near = np.flatnonzero((np.abs(u) > lim) | (self._alpha * np.abs(u - S[0, nx]) > mc))
         frozen = not self.alive.all()
         w_lo, w_hi = self._w_lo, self._w_hi
+        single = self._groups[0][0] if len(self._groups) == 1 else None
         for j in range(steps):
             X, Y = S[j], S[j + 1]
             if perturbed:
                 X[-1] = self._perturbed_command(kl + j, u)
-            if len(self._groups) == 1:
-                np.matmul(self._groups[0][0], self._Sfull[j], out=self._Sfull[j + 1, :-1])
+            if single is not None:
+                np.matmul(single, self._Sfull[j], out=self._Sfull[j + 1, :-1])
             else:
                 for m, rows in self._groups:
                     Y[:-1, rows] = matmul_cols(m, X[:, rows])
@@ -582,9 +575,7 @@ class Stepper:
         self.k += steps
         inside = np.abs(S[0, self._phi]) < s.divergence_rad
         if not inside.all():
-            runaway = self.alive & ~inside
-            if runaway.any():
-                self._diverge(runaway)
+            self._diverge(~inside)
         if self.done:
             return None
         self._obs = self._make_obs()
@@ -641,7 +632,7 @@ class Stepper:
             if self.rec_states is not None:
                 self.rec_states[k, ar] = S[j, :nx].T
             if g is not None:
-                g.sample_rows(np.minimum(kl + j, n), S[j, self._p])
+                g.sample_rows(k, S[j, self._p])
 
     def _perturbed_command(self, kl, u: np.ndarray) -> np.ndarray:
         """Aileron command reaching the servo at local step ``kl`` with the margin perturbation."""
@@ -680,9 +671,8 @@ class Stepper:
         """Disturbance inputs of global step ``k`` (rows ``[w_lo, w_hi)`` of the state)."""
         W = self._W
         if W is None or not (self._w0 <= k < self._w0 + W.shape[0]):
-            n = _BLOCK
             self._w0 = k
-            self._W = W = self._make_block(self._ar, n, k - self._start)
+            self._W = W = self._make_block(self._ar, _BLOCK, k - self._start)
         return W[k - self._w0]
 
     def _make_block(self, rows: np.ndarray, n: int, k_local: np.ndarray) -> np.ndarray:
@@ -697,7 +687,7 @@ class Stepper:
                 sub = P.take(src, rows) if m != self.batch else src
                 for ch, v in sub.values(t).items():
                     chans[ch] = v if ch not in chans else chans[ch] + v
-            bd = self._bd_sig
+            bd = self._dp.bd_disturbance
             for i in range(nx):
                 for ch in range(N_CHANNELS):
                     if ch in chans and bd[i, ch] != 0.0:

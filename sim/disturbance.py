@@ -167,6 +167,8 @@ def disturbance_record(
     in blocks of ``block`` steps exactly as the stepping core draws it (the
     block length does not change the numbers).
     """
+    from .core import matmul_cols  # the core imports this module
+
     if not isinstance(sources, (list, tuple, DisturbanceSet)):
         sources = (sources,)
     out = None
@@ -181,8 +183,8 @@ def disturbance_record(
                 m = min(block, n - k0)
                 e = noise_block(f, rngs, m)  # (m, s, batch)
                 for j in range(m):
-                    part[k0 + j] = _matmul_cols(f.out, x).T
-                    x = _matmul_cols(f.phi, x) + e[j]
+                    part[k0 + j] = matmul_cols(f.out, x).T
+                    x = matmul_cols(f.phi, x) + e[j]
         else:
             batch = len(rng_for(src.component))
             t = np.broadcast_to((np.arange(n) * dt)[:, None], (n, batch))
@@ -236,9 +238,3 @@ def _tri_apply(low: np.ndarray, z: np.ndarray) -> np.ndarray:
             if low[i, j] != 0.0:
                 out[i] += low[i, j] * z[j]
     return out
-
-
-def _matmul_cols(a: np.ndarray, x: np.ndarray) -> np.ndarray:
-    if x.shape[1] != 1:
-        return a @ x
-    return (a @ np.concatenate([x, x], axis=1))[:, :1]

@@ -32,7 +32,7 @@ BYTES_PER_STATE = 8
 #: seconds per base step of the whole batch (per-step overhead) and per run-step (measured, 2 cores)
 SECONDS_PER_STEP = 40e-6
 SECONDS_PER_RUN_STEP = 0.12e-6
-#: fixed memory of a process that has imported numpy and scipy (bytes)
+#: fixed memory of a process that has imported numpy and scipy (bytes; from memory, not measured here)
 BASE_BYTES = 150 * 2**20
 
 

@@ -18,8 +18,8 @@ reads back to an equal scenario.
   scenarios with the same hash simulate the same thing; it goes into every
   output folder's manifest.
 
-Controller kinds other than the bundled PID and user classes register how
-they are written with :func:`register_controller_writer`.
+The bundled controller kinds are written by the table ``_CONTROLLER_WRITERS``;
+other kinds register how they are written with :func:`register_controller_writer`.
 """
 
 from __future__ import annotations
@@ -271,6 +271,11 @@ def _custom(spec: ControllerSpec, arrays: bool) -> dict[str, Any]:
     return out
 
 
+def _policy(spec: ControllerSpec, arrays: bool) -> dict[str, Any]:
+    """``[controller]`` table of a policy controller (the file by absolute path)."""
+    return {"kind": "policy", "rate_hz": float(spec.rate_hz), "file": spec.policy[3]}
+
+
 #: controller kind -> function(spec, arrays) -> [controller] table
 _CONTROLLER_WRITERS: dict[str, Callable[[ControllerSpec, bool], dict[str, Any]]] = {
     "pid": _pid,
@@ -278,6 +283,7 @@ _CONTROLLER_WRITERS: dict[str, Callable[[ControllerSpec, bool], dict[str, Any]]]
     "cascade": _model_based,
     "lqg": _model_based,
     "smith": _model_based,
+    "policy": _policy,
 }
 
 

@@ -1,4 +1,5 @@
-"""Shared test helpers: repository paths, scenario documents and a small TOML writer.
+"""Shared test helpers: repository paths, scenario documents, a small TOML writer and
+the all-camera-stages sensor set-up.
 
 The TOML writer exists because the test venv has no TOML *writer* (``tomllib``
 only reads); it covers what scenario files use (tables, arrays of tables,
@@ -16,6 +17,9 @@ import tomllib
 from pathlib import Path
 from typing import Any
 
+from rollrig.sensors.camera import BurstConfig, CameraConfig, ClassifierConfig
+from rollrig.sensors.gyro import GyroConfig
+
 REPO = Path(__file__).resolve().parents[1]
 SCENARIO_DIR = REPO / "scenarios"
 BUNDLED = sorted(SCENARIO_DIR.glob("*.toml"))
@@ -30,7 +34,56 @@ __all__ = [
     "rich_docs",
     "matrices_aircraft",
     "derivatives_aircraft",
+    "ALL_STAGES_CAMERA",
+    "DRIFTING_GYRO",
+    "short_training_scenario",
 ]
+
+
+def short_training_scenario(tmp_path: Path, runs: int) -> Path:
+    """``learned-bank-step.toml`` cut to 2 s and ``runs`` runs, written under ``tmp_path``:
+    for the training mechanics, not for learning. Fails if the bundled file's keys moved."""
+    text = (SCENARIO_DIR / "learned-bank-step.toml").read_text()
+    for old in ("duration_s = 8.0", "runs = 50"):
+        assert old in text, f"learned-bank-step.toml no longer has {old!r}"
+    path = tmp_path / "short.toml"
+    text = text.replace("duration_s = 8.0", "duration_s = 2.0").replace("runs = 50", f"runs = {runs}")
+    path.write_text(text)
+    return path
+
+
+#: A camera with every reader stage switched on (jitter, exposure, random latency,
+#: wander, bias, scale, outliers, saturation, a weighted classifier, bursty losses);
+#: each stage draws per run. Invented values; also used by ``bench/camera_stages.py``.
+ALL_STAGES_CAMERA = CameraConfig(
+    frame_rate_hz=30,
+    latency_s=0.05,
+    noise_rad=math.radians(0.3),
+    quantization_rad=math.radians(0.5),
+    dropout_prob=0.02,
+    jitter_s=0.003,
+    exposure_s=0.02,
+    latency_jitter_s=0.01,
+    wander_rad=math.radians(0.3),
+    wander_time_s=2.0,
+    bias_rad=math.radians(0.5),
+    scale=1.01,
+    outlier_prob=0.01,
+    outlier_rad=math.radians(15.0),
+    beyond_range="saturate",
+    range_rad=math.radians(60.0),
+    classifier=ClassifierConfig(math.radians(1.0), 4.0, "weighted"),
+    bursts=BurstConfig(0.05, 3.0),
+)
+
+#: A noisy rate gyro whose bias drifts (a Gauss-Markov walk); invented values.
+DRIFTING_GYRO = GyroConfig(
+    rate_hz=100.0,
+    noise_rad_s=math.radians(0.05),
+    bias_rad_s=math.radians(0.1),
+    bias_drift_rad_s=math.radians(0.02),
+    bias_drift_time_s=100.0,
+)
 
 #: A small valid scenario: roll-only model, 2 s, fast to run.
 MINIMAL_SCENARIO = """\

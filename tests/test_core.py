@@ -247,37 +247,10 @@ def test_input_gain_and_delay_perturbation():
 def test_run_alone_equals_run_in_batch_with_every_sensor_stage():
     """Replay is exact with jitter, exposure, random latency, wander, outliers, a weighted
     classifier, bursty losses and a drifting gyro (each stage draws per run)."""
-    from rollrig.sensors.camera import BurstConfig, ClassifierConfig
-    from rollrig.sensors.gyro import GyroConfig
+    from helpers import ALL_STAGES_CAMERA, DRIFTING_GYRO
 
-    d = math.radians
-    cam = CameraConfig(
-        frame_rate_hz=30,
-        latency_s=0.05,
-        noise_rad=d(0.3),
-        quantization_rad=d(0.5),
-        jitter_s=0.003,
-        exposure_s=0.02,
-        latency_jitter_s=0.01,
-        wander_rad=d(0.3),
-        wander_time_s=2.0,
-        bias_rad=d(0.5),
-        scale=1.01,
-        outlier_prob=0.02,
-        outlier_rad=d(15.0),
-        range_rad=d(60.0),
-        classifier=ClassifierConfig(d(1.0), 4.0, "weighted"),
-        bursts=BurstConfig(0.1, 3.0),
-    )
-    gyro = GyroConfig(
-        rate_hz=100.0,
-        noise_rad_s=d(0.05),
-        bias_rad_s=d(0.1),
-        bias_drift_rad_s=d(0.02),
-        bias_drift_time_s=100.0,
-    )
-    base = _setup(n=800, cam=cam, cmd=math.radians(15))
-    setup = LoopSetup(**{**base.__dict__, "gyro": gyro})
+    base = _setup(n=800, cam=ALL_STAGES_CAMERA, cmd=math.radians(15))
+    setup = LoopSetup(**{**base.__dict__, "gyro": DRIFTING_GYRO})
     pid = lambda: PIDController(PIDConfig(kp=0.6, ki_per_s=0.15, kd_s=0.08, derivative_source="gyro"))  # noqa: E731
     batch = simulate(setup, pid(), seed=3, run_indices=range(4))
     assert not np.array_equal(batch.bank[1], batch.bank[2])

@@ -16,7 +16,8 @@ import math
 import numpy as np
 import pytest
 from numpy.testing import assert_allclose
-from rollrig.sensors.fit import LogProblem, fit_sensor, sensor_toml
+from rollrig.sensors.fit import LogProblem, fit_sensor
+from rollrig.sim.report.fit_report import sensor_toml
 from rollrig.sim.scenario import parse_scenario
 from rollrig.sim.section import Section
 from rollrig.sim.sensor_log import make_log, read_log, write_log

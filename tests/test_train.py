@@ -6,18 +6,14 @@ import json
 
 import numpy as np
 import pytest
-from helpers import SCENARIO_DIR
+from helpers import SCENARIO_DIR, short_training_scenario
 from rollrig.controllers.policy import load_policy
 
 STEP = SCENARIO_DIR / "learned-bank-step.toml"
 
 
 def short_scenario(tmp_path):
-    """The training scenario cut to 2 s and 4 runs: for the mechanics, not for learning."""
-    text = STEP.read_text().replace("duration_s = 8.0", "duration_s = 2.0").replace("runs = 50", "runs = 4")
-    path = tmp_path / "short.toml"
-    path.write_text(text)
-    return path
+    return short_training_scenario(tmp_path, runs=4)
 
 
 SMALL = ["--directions", "2", "--top", "1", "--eval-every", "2"]

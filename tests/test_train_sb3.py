@@ -7,20 +7,16 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from helpers import SCENARIO_DIR
+from helpers import SCENARIO_DIR, short_training_scenario
 from rollrig.controllers.policy import load_policy
 
 torch = pytest.importorskip("torch")
 pytest.importorskip("stable_baselines3")
-
 STEP = SCENARIO_DIR / "learned-bank-step.toml"
 
 
 def short_scenario(tmp_path):
-    text = STEP.read_text().replace("duration_s = 8.0", "duration_s = 2.0").replace("runs = 50", "runs = 3")
-    path = tmp_path / "short.toml"
-    path.write_text(text)
-    return path
+    return short_training_scenario(tmp_path, runs=3)
 
 
 def test_ppo_smoke_trains_writes_and_flies_a_policy(cli, tmp_path):

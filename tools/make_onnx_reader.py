@@ -27,9 +27,9 @@ __all__ = ["moment_weights", "build_model", "numpy_model"]
 
 def moment_weights(size_px: int, inner: float = 0.5, outer: float = 0.7) -> np.ndarray:
     """``(size², 2)`` float32: anti-aliased annulus weights times x and y (face units, y up)."""
-    u = size_px / 2.0
-    c = (np.arange(size_px) + 0.5 - u) / u
-    x, y = np.meshgrid(c, -c)
+    from rollrig.sensors.instrument import face_coordinates
+
+    x, y, u = face_coordinates(size_px)
     r = np.hypot(x, y)
     m = np.clip((r - inner) * u + 0.5, 0, 1) * np.clip((outer - r) * u + 0.5, 0, 1)
     return np.stack([(m * x).ravel(), (m * y).ravel()], axis=1).astype(np.float32)

@@ -36,7 +36,7 @@ from ..build import make_controller
 from ..controller_section import ControllerSpec, load_controller_file
 from ..errors import UserInputError
 from ..metrics import METRIC_INFO
-from ..runner import CRITERIA_LABELS, metric_spec, run_scenario
+from ..runner import metric_spec, run_scenario
 from ..scenario import Scenario
 from ..stats import MetricSummary, PassSummary, paired_difference
 
@@ -343,6 +343,3 @@ def rank(cmp_: ScenarioComparison, weights: dict[str, float]) -> dict[str, float
                 total += w * sign * (s.mean / b if b not in (0.0,) and math.isfinite(b) else s.mean)
         scores[r.candidate] = total
     return scores
-
-
-CRITERIA = CRITERIA_LABELS

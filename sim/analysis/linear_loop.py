@@ -64,6 +64,7 @@ __all__ = [
     "open_loop_response",
     "closed_loop_response",
     "rational_loop",
+    "closed_loop_stable",
     "margins",
     "FrequencyResponse",
     "loop_evaluator",
@@ -330,9 +331,7 @@ class _Evaluator:
 
     def stable(self, pade_order: int = 6) -> bool:
         """Closed-loop stability from the eigenvalues of the Padé closed loop."""
-        closed = ct.feedback(rational_loop(self.parts, pade_order), 1.0, sign=-1)
-        poles = np.linalg.eigvals(closed.A) if closed.A.size else np.array([])
-        return bool(np.all(poles.real < 0.0))
+        return closed_loop_stable(self.parts, pade_order)
 
     def closed_dc(self) -> float:
         return abs(complex(self.closed(np.array([_OMEGA_DC]))[0]))
@@ -444,6 +443,13 @@ def rational_loop(parts: LoopParts, pade_order: int = 6) -> ct.StateSpace:
     if _split_derivative(parts):
         ctrl_cam = ctrl_cam + ct.ss(_camera_derivative(parts)) * delay(parts.derivative_delay_s)
     return ctrl_cam * delay(parts.camera_delay_s) * g_phi * front
+
+
+def closed_loop_stable(parts: LoopParts, pade_order: int = 6) -> bool:
+    """Closed-loop stability (unit negative feedback) from the eigenvalues of :func:`rational_loop`."""
+    closed = ct.feedback(rational_loop(parts, pade_order), 1.0, sign=-1)
+    poles = np.linalg.eigvals(closed.A) if closed.A.size else np.array([])
+    return bool(np.all(poles.real < 0.0))
 
 
 # ---------------------------------------------------------------------------

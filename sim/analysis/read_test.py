@@ -40,6 +40,7 @@ from dataclasses import dataclass, field
 import numpy as np
 from rollrig.sensors import image_degrade as D
 from rollrig.sensors.instrument import MAX_SIZE_PX, MIN_SIZE_PX, Instrument
+from rollrig.sensors.readers import wrap_angle
 
 from ..section import Section, read_toml_file
 from ..seeding import run_generators
@@ -202,7 +203,7 @@ class ReadTestResult:
 
     def errors_deg(self, kind: str) -> np.ndarray:
         """Wrapped reading errors (deg), NaN where invalid, ``(n_strength, n_bank, n_draw)``."""
-        e = _wrap(self.readings[kind] - self.banks_rad[None, :, None])
+        e = wrap_angle(self.readings[kind] - self.banks_rad[None, :, None])
         return np.where(self.valid[kind], np.degrees(e), np.nan)
 
     def ranking(self) -> list[tuple[str, float, float]]:
@@ -227,16 +228,12 @@ def _is_clean(kind: str, strength: float) -> bool:
     return abs(strength - _NEUTRAL[kind]) < 1e-12
 
 
-def _wrap(a):
-    return (np.asarray(a) + np.pi) % (2.0 * np.pi) - np.pi
-
-
 def condition_stats(
     kind: str, strength: float, banks: np.ndarray, read: np.ndarray, ok: np.ndarray, outlier_deg: float
 ) -> ConditionStats:
     """Error statistics of readings ``(n_bank, n_draw)`` against ``banks`` (rad)."""
     truth = np.broadcast_to(banks[:, None], read.shape)
-    e = np.degrees(_wrap(read - truth))[ok]
+    e = np.degrees(wrap_angle(read - truth))[ok]
     t = np.degrees(truth[ok])
     n = e.size
     if n == 0:
@@ -271,7 +268,7 @@ def fit_sensor_model(
     The reader rounds when every reading sits on one grid of step ≥ 0.01°.
     """
     truth = np.broadcast_to(banks[:, None], read.shape)[ok]
-    r = truth + _wrap(read[ok] - truth)
+    r = truth + wrap_angle(read[ok] - truth)
     n = r.size
     drop = float(1.0 - ok.mean())
     if n < 3:

@@ -10,6 +10,8 @@ from pathlib import Path
 from rollrig.sim.errors import UserInputError
 
 __all__ = [
+    "add_force_option",
+    "add_format_option",
     "add_seed_option",
     "apply_run_overrides",
     "check_batch_resources",
@@ -27,6 +29,18 @@ MAX_RUNS = 100_000
 MAX_SEED = 2**63 - 1
 #: show a progress bar on a terminal when a batch is expected to take longer (s)
 PROGRESS_AFTER_S = 3.0
+
+
+#: the ``--format`` choices every table-printing command offers
+FORMATS = ("table", "csv", "json", "md")
+
+
+def add_format_option(p, help: str | None = None) -> None:
+    p.add_argument("--format", choices=FORMATS, default="table", help=help)
+
+
+def add_force_option(p, help: str = "replace an existing output folder") -> None:
+    p.add_argument("--force", action="store_true", help=help)
 
 
 def add_seed_option(p, default=None) -> None:

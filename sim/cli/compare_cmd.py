@@ -5,7 +5,14 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-from rollrig.sim.cli.common import apply_run_overrides, print_tables, say_written, status_stream
+from rollrig.sim.cli.common import (
+    add_force_option,
+    add_format_option,
+    apply_run_overrides,
+    print_tables,
+    say_written,
+    status_stream,
+)
 from rollrig.sim.errors import UserInputError
 
 __all__ = ["add_parser", "run"]
@@ -50,11 +57,11 @@ def add_parser(sub) -> None:
     p.add_argument(
         "--workers", type=int, default=1, help="processes for the pairings (results do not change)"
     )
-    p.add_argument("--format", choices=("table", "csv", "json", "md"), default="table")
+    add_format_option(p)
     p.add_argument(
         "--out", type=Path, metavar="DIR", help="write CSV, JSON, Markdown, plots and a manifest here"
     )
-    p.add_argument("--force", action="store_true", help="replace an existing output folder")
+    add_force_option(p)
     p.add_argument("--allow-code", action="store_true", help="allow user controller classes (runs your code)")
     p.set_defaults(func=run)
 

@@ -5,7 +5,13 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-from rollrig.sim.cli.common import apply_run_overrides, print_tables, say_written
+from rollrig.sim.cli.common import (
+    add_force_option,
+    add_format_option,
+    apply_run_overrides,
+    print_tables,
+    say_written,
+)
 from rollrig.sim.errors import UserInputError
 
 __all__ = ["add_parser", "run"]
@@ -27,9 +33,9 @@ def add_parser(sub) -> None:
     )
     p.add_argument("--runs", type=int, help="Monte Carlo runs per variant (overrides [run] runs)")
     p.add_argument("--seed", type=int, help="run seed, 0 … 2^63 − 1 (overrides [run] seed)")
-    p.add_argument("--format", choices=("table", "csv", "json", "md"), default="table")
+    add_format_option(p)
     p.add_argument("--out", type=Path, metavar="DIR", help="also write the table and a manifest here")
-    p.add_argument("--force", action="store_true", help="replace an existing output folder")
+    add_force_option(p)
     p.add_argument("--allow-code", action="store_true", help="allow a user controller class (runs your code)")
     p.set_defaults(func=run)
 

@@ -6,7 +6,7 @@ import argparse
 import hashlib
 from pathlib import Path
 
-from rollrig.sim.cli.common import print_tables, say_written
+from rollrig.sim.cli.common import add_force_option, add_format_option, print_tables, say_written
 
 __all__ = ["add_parser", "run"]
 
@@ -35,21 +35,16 @@ def add_parser(sub) -> None:
     p.add_argument(
         "--out", type=Path, metavar="DIR", help="output folder (default rollrig-runs/fit-<log>-<time>)"
     )
-    p.add_argument("--force", action="store_true", help="replace an existing output folder")
+    add_force_option(p)
     p.add_argument("--no-files", action="store_true", help="print the table only, write no folder")
-    p.add_argument(
-        "--format",
-        choices=("table", "csv", "json", "md"),
-        default="table",
-        help="how to print the estimates (default: table)",
-    )
+    add_format_option(p, help="how to print the estimates (default: table)")
     p.set_defaults(func=run)
 
 
 def run(args: argparse.Namespace) -> int:
-    from rollrig.sensors.fit import LogProblem, fit_sensor, sensor_toml
+    from rollrig.sensors.fit import LogProblem, fit_sensor
     from rollrig.sim.errors import LogFileError, UserInputError
-    from rollrig.sim.report.fit_report import fit_tables, plot_fit
+    from rollrig.sim.report.fit_report import fit_tables, plot_fit, sensor_toml
     from rollrig.sim.report.outdir import check_out_dir, default_out_dir, manifest, output_folder, write_json
     from rollrig.sim.report.table import render
     from rollrig.sim.sensor_log import read_log

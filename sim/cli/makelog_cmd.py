@@ -5,7 +5,7 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-from rollrig.sim.cli.common import MAX_SEED, check_seed
+from rollrig.sim.cli.common import MAX_SEED, add_force_option, check_seed
 from rollrig.sim.errors import UserInputError
 
 __all__ = ["add_parser", "run"]
@@ -24,7 +24,7 @@ def add_parser(sub) -> None:
         "--run", type=int, default=0, metavar="N", help="which run of the Monte Carlo set (default 0)"
     )
     p.add_argument("--seed", type=int, help="run seed, 0 … 2^63 − 1 (overrides [run] seed)")
-    p.add_argument("--force", action="store_true", help="replace an existing log file")
+    add_force_option(p, help="replace an existing log file")
     p.add_argument("--allow-code", action="store_true", help="allow a user controller class (runs your code)")
     p.set_defaults(func=run)
 

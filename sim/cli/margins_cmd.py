@@ -12,7 +12,13 @@ import argparse
 import hashlib
 from pathlib import Path
 
-from rollrig.sim.cli.common import print_tables, say_written, status_stream
+from rollrig.sim.cli.common import (
+    add_force_option,
+    add_format_option,
+    print_tables,
+    say_written,
+    status_stream,
+)
 from rollrig.sim.errors import UserInputError
 
 __all__ = ["add_parser", "run"]
@@ -56,12 +62,7 @@ def add_parser(sub) -> None:
         default="B",
         help="flight-phase category (default B: cruise, gradual manoeuvres)",
     )
-    p.add_argument(
-        "--format",
-        choices=("table", "csv", "json", "md"),
-        default="table",
-        help="how to print the tables (default: table)",
-    )
+    add_format_option(p, help="how to print the tables (default: table)")
     p.add_argument(
         "--plot", action="store_true", help="write Bode/Nichols/Nyquist plots (PID) into an output folder"
     )
@@ -71,7 +72,7 @@ def add_parser(sub) -> None:
         metavar="DIR",
         help="output folder (default with --plot: rollrig-runs/<name>-margins-<time>)",
     )
-    p.add_argument("--force", action="store_true", help="replace an existing output folder")
+    add_force_option(p)
     p.add_argument("--no-empirical", action="store_true", help="skip the simulated margins")
     p.add_argument("--seed", type=int, default=0, help="seed of the frame-loss draws (default 0)")
     p.add_argument(

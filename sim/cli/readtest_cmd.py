@@ -5,7 +5,13 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-from rollrig.sim.cli.common import print_tables, say_written, status_stream
+from rollrig.sim.cli.common import (
+    add_force_option,
+    add_format_option,
+    print_tables,
+    say_written,
+    status_stream,
+)
 
 __all__ = ["add_parser", "run"]
 
@@ -35,11 +41,11 @@ def add_parser(sub) -> None:
         "them with the fitted model (needs a scenario)",
     )
     p.add_argument("--allow-code", action="store_true", help="allow a python: reader (runs your code)")
-    p.add_argument("--format", choices=("table", "csv", "json", "md"), default="table")
+    add_format_option(p)
     p.add_argument(
         "--out", type=Path, metavar="DIR", help="output folder (default rollrig-runs/read-test-<file>-<time>)"
     )
-    p.add_argument("--force", action="store_true", help="replace an existing output folder")
+    add_force_option(p)
     p.add_argument("--no-files", action="store_true", help="print the tables only, write no folder")
     p.set_defaults(func=run)
 

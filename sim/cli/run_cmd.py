@@ -6,6 +6,7 @@ import argparse
 from pathlib import Path
 
 from rollrig.sim.cli.common import (
+    add_format_option,
     add_seed_option,
     apply_run_overrides,
     check_batch_resources,
@@ -37,12 +38,7 @@ def add_parser(sub) -> None:
         help="replace an existing output folder that rollrig wrote (never any other folder)",
     )
     p.add_argument("--no-files", action="store_true", help="print the table only, write no folder")
-    p.add_argument(
-        "--format",
-        choices=("table", "csv", "json", "md"),
-        default="table",
-        help="how to print the metrics (default: table)",
-    )
+    add_format_option(p, help="how to print the metrics (default: table)")
     p.add_argument("--plot", action="store_true", help="also write PNG plots")
     p.add_argument(
         "--allow-code",

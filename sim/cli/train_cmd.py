@@ -5,7 +5,14 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-from rollrig.sim.cli.common import print_tables, say_written, status_stream
+from rollrig.sim.cli.common import (
+    MAX_SEED,
+    add_force_option,
+    add_format_option,
+    print_tables,
+    say_written,
+    status_stream,
+)
 from rollrig.sim.errors import UserInputError
 
 __all__ = ["add_parser", "run"]
@@ -57,8 +64,8 @@ def add_parser(sub) -> None:
     p.add_argument(
         "--out", type=Path, metavar="DIR", help="output folder (default rollrig-runs/train-<name>-<time>)"
     )
-    p.add_argument("--force", action="store_true", help="replace an existing output folder")
-    p.add_argument("--format", choices=("table", "csv", "json", "md"), default="table")
+    add_force_option(p)
+    add_format_option(p)
     p.set_defaults(func=run)
 
 
@@ -94,7 +101,7 @@ def _check(args) -> None:
         ("--top", args.top, 1, args.directions),
         ("--history", args.history, 1, 64),
         ("--eval-every", args.eval_every, 1, 100_000),
-        ("--seed", args.seed, 0, 2**63 - 1),
+        ("--seed", args.seed, 0, MAX_SEED),
     ]
     for name, v, lo, hi in checks:
         if not lo <= v <= hi:

@@ -12,7 +12,13 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-from rollrig.sim.cli.common import print_tables, say_written, status_stream
+from rollrig.sim.cli.common import (
+    add_force_option,
+    add_format_option,
+    print_tables,
+    say_written,
+    status_stream,
+)
 from rollrig.sim.errors import UserInputError
 
 __all__ = ["add_parser", "run", "NO_FEASIBLE_EXIT"]
@@ -43,11 +49,11 @@ def add_parser(sub) -> None:
     )
     p.add_argument("--no-sensitivity", action="store_true", help="skip the per-fault sensitivity table")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
-    p.add_argument("--format", choices=("table", "csv", "json", "md"), default="table")
+    add_format_option(p)
     p.add_argument(
         "--out", type=Path, metavar="DIR", help="output folder (default rollrig-runs/tune-<name>-<time>)"
     )
-    p.add_argument("--force", action="store_true", help="replace an existing output folder")
+    add_force_option(p)
     p.set_defaults(func=run)
 
 

@@ -5,7 +5,7 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-from rollrig.sim.cli.common import check_seed, print_tables, say_written
+from rollrig.sim.cli.common import add_force_option, add_format_option, check_seed, print_tables, say_written
 from rollrig.sim.errors import UserInputError
 
 __all__ = ["add_parser", "run"]
@@ -31,8 +31,8 @@ def add_parser(sub) -> None:
     p.add_argument("--base-step-s", type=float, default=None, help="time step, s (default 0.01)")
     p.add_argument("--seed", type=int, default=1, help="seed, 0 … 2^63 − 1 (default 1)")
     p.add_argument("--out", type=Path, metavar="DIR", help="folder for turbulence_psd.png and the table")
-    p.add_argument("--force", action="store_true", help="replace an output folder rollrig wrote")
-    p.add_argument("--format", choices=("table", "csv", "json", "md"), default="table")
+    add_force_option(p, help="replace an output folder rollrig wrote")
+    add_format_option(p)
     p.set_defaults(func=run)
 
 

@@ -26,13 +26,21 @@ from dataclasses import dataclass, replace
 from pathlib import Path
 
 import numpy as np
+from rollrig.controllers.base import Observation
 
-from ..build import build_setup
 from ..core import LoopSetup
 from ..errors import UserInputError
 from ..scenario import Scenario, load_scenario, parse_scenario
 
-__all__ = ["RANGES", "EpisodeDraw", "draw_episode", "check_ranges", "episode_setup", "as_scenario"]
+__all__ = [
+    "RANGES",
+    "EpisodeDraw",
+    "draw_episode",
+    "check_ranges",
+    "episode_setup",
+    "aged_observation",
+    "as_scenario",
+]
 
 #: randomised quantity -> (unit, allowed lowest, allowed highest)
 RANGES: dict[str, tuple[str, float, float]] = {
@@ -137,6 +145,19 @@ def episode_setup(base: LoopSetup, sc: Scenario, draw: EpisodeDraw) -> LoopSetup
     return replace(base, **changes) if changes else base
 
 
+def aged_observation(last: Observation, t: float, bank_cmd) -> Observation:
+    """The observation at ``t`` when the core has no next tick: the last reading, older by ``t − last.t``."""
+    return Observation(
+        t=t,
+        dt=last.dt,
+        bank=last.bank,
+        valid=last.valid,
+        age=last.age + (t - last.t),
+        bank_cmd=np.broadcast_to(bank_cmd, (len(last.bank),)).copy(),
+        rate=last.rate,
+    )
+
+
 def as_scenario(scenario: Scenario | Mapping | str | Path) -> Scenario:
     """A scenario from a file path, a parsed TOML dict, or a :class:`Scenario`."""
     if isinstance(scenario, Scenario):
@@ -147,8 +168,3 @@ def as_scenario(scenario: Scenario | Mapping | str | Path) -> Scenario:
         digest = hashlib.sha256(json.dumps(scenario, sort_keys=True, default=str).encode()).hexdigest()
         return parse_scenario(dict(scenario), file="<scenario dict>", sha256=digest)
     raise UserInputError(f"scenario = {type(scenario).__name__}; allowed: a file path, a dict or a Scenario")
-
-
-def base_setup(sc: Scenario) -> LoopSetup:
-    """The scenario's own loop setup (the environment's starting point)."""
-    return build_setup(sc)

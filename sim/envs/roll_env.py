@@ -18,9 +18,10 @@ import numpy as np
 from rollrig.controllers.base import Observation
 from rollrig.controllers.policy import AGE_CLIP, RATE_CLIP, ObservationBuilder, ObservationLayout
 
+from ..build import build_setup
 from ..core import Stepper
 from ..scenario import Scenario
-from .episode import as_scenario, base_setup, check_ranges, draw_episode, episode_setup
+from .episode import aged_observation, as_scenario, check_ranges, draw_episode, episode_setup
 
 __all__ = ["RollHoldEnv", "RewardWeights", "observation_space", "step_reward"]
 
@@ -118,7 +119,7 @@ class RollHoldEnv(gym.Env):
     ) -> None:
         self.scenario = as_scenario(scenario)
         self.ranges = check_ranges(randomize)
-        self.base = base_setup(self.scenario)
+        self.base = build_setup(self.scenario)
         self.layout = ObservationLayout(history=int(history), gyro=self.scenario.gyro is not None)
         self.builder = ObservationBuilder(self.layout)
         self.observation_space = observation_space(self.layout)
@@ -130,7 +131,6 @@ class RollHoldEnv(gym.Env):
         self.bank_limit_rad = self.scenario.criteria.bank_limit_rad
         self.n_ticks = len(self.base.tick_steps)
         self._stepper: Stepper | None = None
-        self._fig = None
 
     # ------------------------------------------------------------------ API
     def reset(self, *, seed: int | None = None, options: dict | None = None):
@@ -161,16 +161,7 @@ class RollHoldEnv(gym.Env):
         if terminated:
             reward -= RewardWeights.termination * (self.n_ticks - self._tick)
         if obs is None:  # no next tick: the last reading, one tick older
-            last = self._last
-            obs = Observation(
-                t=k * st.setup.dt,
-                dt=last.dt,
-                bank=last.bank,
-                valid=last.valid,
-                age=last.age + (k * st.setup.dt - last.t),
-                bank_cmd=np.full(1, cmd),
-                rate=last.rate,
-            )
+            obs = aged_observation(self._last, k * st.setup.dt, cmd)
         self._prev = a
         self._last = obs
         return self._vector(obs), reward, terminated, truncated, self._info()

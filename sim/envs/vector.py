@@ -36,9 +36,10 @@ from gymnasium.vector.utils import batch_space
 from rollrig.controllers.base import Observation
 from rollrig.controllers.policy import ObservationBuilder, ObservationLayout
 
+from ..build import build_setup
 from ..core import Stepper
 from ..scenario import Scenario
-from .episode import EpisodeDraw, as_scenario, base_setup, check_ranges, draw_episode, scale_disturbance
+from .episode import EpisodeDraw, aged_observation, as_scenario, check_ranges, draw_episode, scale_disturbance
 from .roll_env import RewardWeights, observation_space, step_reward
 
 __all__ = ["RollHoldVectorEnv"]
@@ -115,7 +116,7 @@ class RollHoldVectorEnv(gym.vector.VectorEnv):
         self.num_envs = int(num_envs)
         self.scenario = as_scenario(scenario)
         self.ranges = check_ranges(randomize)
-        self.base = base_setup(self.scenario)
+        self.base = build_setup(self.scenario)
         self.layout = ObservationLayout(history=int(history), gyro=self.scenario.gyro is not None)
         self.single_observation_space = observation_space(self.layout)
         self.single_action_space = gym.spaces.Box(-1.0, 1.0, shape=(1,), dtype=np.float32)
@@ -192,17 +193,7 @@ class RollHoldVectorEnv(gym.vector.VectorEnv):
         t_end = (np.abs(bank) > self.bank_limit_rad) | ~st.alive
         r = np.where(t_end, r - RewardWeights.termination * (self.n_ticks - c.tick), r)
         if nxt is None:
-            last = c.last
-            t = k * st.setup.dt
-            nxt = Observation(
-                t=t,
-                dt=last.dt,
-                bank=last.bank,
-                valid=last.valid,
-                age=last.age + (t - last.t),
-                bank_cmd=np.broadcast_to(cmd, (a.size,)).copy(),
-                rate=last.rate,
-            )
+            nxt = aged_observation(c.last, k * st.setup.dt, cmd)
             tr_end = ~t_end
         else:
             nxt = c._commanded(nxt)

@@ -9,7 +9,7 @@ import numpy as np
 
 from .table import Table, fmt_number
 
-__all__ = ["fit_tables", "plot_fit"]
+__all__ = ["fit_tables", "plot_fit", "sensor_toml"]
 
 _ROWS = (  # key, label, shown in degrees
     ("frame_rate_hz", "frame rate", False),
@@ -81,3 +81,43 @@ def plot_fit(fit, path: Path, title: str) -> None:
     b.grid(alpha=0.3)
     fig.savefig(path, dpi=110)
     plt.close(fig)
+
+
+def sensor_toml(fit, source: str = "") -> str:
+    """A ready-to-paste ``[sensor]`` section (scenario units) from a fit.
+
+    Each value is clipped to the range the ``[sensor]`` parser accepts, so the
+    section always loads (a test parses it).
+    """
+    e = fit.estimates
+    deg = math.degrees
+    rate = e["frame_rate_hz"].value
+    lines = [f"# fitted by rollrig fit-sensor{' from ' + source if source else ''}", "[sensor]"]
+
+    def put(key: str, value: float, digits: int = 4) -> None:
+        value = 0.0 if abs(value) < 1e-9 else value
+        lines.append(f"{key} = {float(f'{value:.{digits}g}')!r}")
+
+    put("frame_rate_hz", rate)
+    put("jitter_s", min(e["jitter_s"].value, 0.5 / rate), 3)
+    put("latency_s", min(e["latency_s"].value, 5.0), 4)
+    put("noise_deg", min(deg(e["noise_rad"].value), 30.0), 3)
+    if e["wander_rad"].value > 0:
+        put("wander_deg", min(deg(e["wander_rad"].value), 30.0), 3)
+        put("wander_time_s", float(np.clip(e["wander_time_s"].value, 0.01, 3600.0)), 3)
+    put("bias_deg", float(np.clip(deg(e["bias_rad"].value), -45, 45)), 3)
+    put("scale", float(np.clip(e["scale"].value, 0.5, 2.0)), 4)
+    if e["quantization_rad"].value > 0:
+        put("quantization_deg", min(deg(e["quantization_rad"].value), 30.0), 3)
+    if e["outlier_prob"].value > 0:
+        put("outlier_prob", min(e["outlier_prob"].value, 0.5), 3)
+        put("outlier_deg", min(deg(e["outlier_rad"].value), 180.0), 3)
+    pi = e["loss_rate"].value
+    if pi > 0 and fit.bursty:
+        b = max(e["mean_burst_frames"].value, pi / (1 - pi), 1.0)
+        lines += ["", "[sensor.bursts]"]
+        put("loss_rate", min(pi, 0.9), 3)
+        put("mean_burst_frames", b, 3)
+    elif pi > 0:
+        put("dropout_prob", min(pi, 0.99), 3)
+    return "\n".join(lines) + "\n"

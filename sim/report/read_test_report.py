@@ -14,7 +14,6 @@ __all__ = [
     "condition_table",
     "ranking_table",
     "fit_table",
-    "sensor_updates",
     "sensor_section_text",
     "fidelity_table",
     "plot_error_vs_bank",
@@ -100,19 +99,6 @@ def ranking_table(res) -> Table:
         t.notes.append(f"{kind} strength: {KINDS[kind][0]}")
     t.notes.append("ranked by RMS error added over the clean pictures, then by the valid share lost")
     return t
-
-
-def sensor_updates(fit) -> dict[str, float]:
-    """The ``CameraConfig`` fields the fit sets (SI)."""
-    return {
-        "bias_rad": fit.bias_rad,
-        "scale": fit.scale,
-        "noise_rad": fit.noise_rad,
-        "outlier_prob": min(fit.outlier_prob, 0.5),
-        "outlier_rad": fit.outlier_rad,
-        "dropout_prob": fit.dropout_prob,
-        "quantization_rad": fit.quantization_rad,
-    }
 
 
 def fit_table(res) -> Table:

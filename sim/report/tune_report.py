@@ -88,11 +88,6 @@ def gains_table(result, validation) -> Table:
     return t
 
 
-def _case_metrics(a, i: int, c: int) -> dict[str, float]:
-    """Seed-mean metrics of candidate ``i`` on case ``c`` (inf if any seed is inf)."""
-    return {k: float(np.mean(v[i, c])) for k, v in a.grid.metrics.items()}
-
-
 def before_after_table(result, validation) -> tuple[Table, tuple[int, int]]:
     p = result.problem
     s, h = validation.search, validation.held

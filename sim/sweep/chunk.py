@@ -166,9 +166,8 @@ def _loses_frames(sc: Scenario) -> bool:
 
 def _stability(scs: list[Scenario], payload: dict, runs: int) -> list[dict]:
     from rollrig.sim.analysis.empirical import quiet_scenario, settle_verdict
-    from rollrig.sim.controller_section import make_controller
+    from rollrig.sim.build import build_setup, make_controller
     from rollrig.sim.core import simulate
-    from rollrig.sim.scenario import build_setup
     from rollrig.sim.stats import pass_fraction
 
     st = payload["stability"]

@@ -35,7 +35,6 @@ ones rank by how far they miss.
 
 from __future__ import annotations
 
-import dataclasses
 import math
 from dataclasses import dataclass
 
@@ -174,24 +173,20 @@ def margin_screen(sc: Scenario, names: tuple[str, ...], gains: np.ndarray) -> Ma
     Built with :func:`sim.analysis.loop_from_scenario.loop_parts_from_scenario`
     and evaluated with :func:`sim.analysis.linear_loop.open_loop_response` on
     :data:`SCREEN_OMEGA`, crossovers interpolated between grid points (log
-    frequency), closed-loop stability from the eigenvalues of
-    :func:`sim.analysis.linear_loop.rational_loop` under unit feedback — the
+    frequency), closed-loop stability from
+    :func:`sim.analysis.linear_loop.closed_loop_stable` — the
     same definitions as :func:`sim.analysis.linear_loop.margins`, without its
     root refinement, which costs ~0.3 s per loop (a test holds the two
     together). ``None`` if the scenario has no linear model.
     """
-    import control as ct
-
-    from ..analysis.linear_loop import open_loop_response, rational_loop
+    from ..analysis.linear_loop import closed_loop_stable, open_loop_response
     from ..analysis.loop_from_scenario import has_linear_model, loop_parts_from_scenario
+    from .search import with_gains  # local: search imports this module
 
     if not has_linear_model(sc):
         return None
-    pid = dataclasses.replace(sc.controller.pid, **{n: float(g) for n, g in zip(names, gains, strict=True)})
-    case = dataclasses.replace(sc, controller=dataclasses.replace(sc.controller, pid=pid))
-    parts = loop_parts_from_scenario(case)
-    closed = ct.feedback(rational_loop(parts, 6), 1.0, sign=-1)
-    stable = bool(np.all(np.linalg.eigvals(closed.A).real < 0.0)) if closed.A.size else True
+    parts = loop_parts_from_scenario(with_gains(sc, names, gains))
+    stable = closed_loop_stable(parts, 6)
     w = SCREEN_OMEGA
     big_l = open_loop_response(parts, w)
     if abs(big_l[-1]) >= 1.0:  # a crossover beyond the grid: count it as no margin at all
