@@ -120,27 +120,37 @@ class ObservationBuilder:
 
     def reset(self, batch: int) -> None:
         self._out = np.zeros((batch, self.layout.size))  # the vector being kept up to date
-        self._first = True
+        self._fresh: np.ndarray | None = np.ones(batch, dtype=bool)  # rows with no history yet
+
+    def restart(self, rows) -> None:
+        """Forget the history of batch rows ``rows`` (their next call starts it afresh)."""
+        if self._fresh is None:
+            self._fresh = np.zeros(self._out.shape[0], dtype=bool)
+        self._fresh[rows] = True
 
     def __call__(self, obs: Observation, prev_action: np.ndarray) -> np.ndarray:
         """Observation vectors ``(batch, size)`` float32 for this tick (call once per tick)."""
         out, h = self._out, self.layout.history
         reading = np.asarray(obs.bank, dtype=float) / BANK_SCALE_RAD
-        fields = (reading, obs.valid, np.minimum(np.asarray(obs.age, dtype=float) / AGE_SCALE_S, AGE_CLIP))
-        for i, new in enumerate(fields):  # newest first: shift the history by one tick
-            block = out[:, i * h : (i + 1) * h]
-            if self._first:
-                block[:] = np.asarray(new, dtype=float)[:, None]
+        hist = out[:, : 3 * h].reshape(out.shape[0], 3, h)  # (batch, field, tick) view, newest first
+        hist[:, :, 1:] = hist[:, :, :-1]  # shift the history by one tick (numpy copies overlaps safely)
+        hist[:, 0, 0] = reading
+        hist[:, 1, 0] = obs.valid
+        np.minimum(np.asarray(obs.age, dtype=float) / AGE_SCALE_S, AGE_CLIP, out=hist[:, 2, 0])
+        fresh = self._fresh
+        if fresh is not None:  # no history yet: every slot holds the first reading
+            if fresh.all():
+                hist[:, :, 1:] = hist[:, :, :1]
             else:
-                block[:, 1:] = block[:, :-1].copy()
-                block[:, 0] = new
-        self._first = False
+                rows = fresh.nonzero()[0]
+                hist[rows, :, 1:] = hist[rows, :, :1]
+            self._fresh = None
         j = 3 * h
         if self.layout.gyro:
-            if obs.rate is not None:
-                np.clip(
-                    np.asarray(obs.rate, dtype=float) / RATE_SCALE_RAD_S, -RATE_CLIP, RATE_CLIP, out=out[:, j]
-                )
+            if obs.rate is not None:  # clipped to ±RATE_CLIP (np.clip's arithmetic, without its overhead)
+                col = out[:, j]
+                np.maximum(np.asarray(obs.rate, dtype=float) / RATE_SCALE_RAD_S, -RATE_CLIP, out=col)
+                np.minimum(col, RATE_CLIP, out=col)
             else:
                 out[:, j] = 0.0
             j += 1

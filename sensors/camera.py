@@ -188,6 +188,8 @@ class CameraConfig:
 
 def _at(value, rows=None):
     """A scalar or per-run parameter at batch rows ``rows`` (a float, or an array shaped like ``rows``)."""
+    if isinstance(value, float):
+        return value
     a = np.asarray(value, dtype=float)
     if a.ndim == 0:
         return float(a)
@@ -363,6 +365,35 @@ class CameraReader:
         self.batch = batch
         n = n_frames_for(cfg.frame_rate_hz, self.dt, n_steps)
         self.n_frames = n
+        self.set_config(cfg)
+        cfg = self.cfg
+        # frame-major (n + 1, batch) arrays; the spare last row (index -1)
+        # stands for "no frame yet" and is never valid
+        self._offset = np.zeros((n + 1, batch))
+        self._kept = np.zeros((n + 1, batch), dtype=bool)
+        self._cap_step = np.zeros((n + 1, batch), dtype=np.int64)
+        self.capture_time = np.full((n + 1, batch), -np.inf)
+        self.capture_step = np.zeros((batch, n), dtype=np.int64)
+        self.deliver_step = np.zeros((batch, n), dtype=np.int64)
+        self._latest = np.full((self.tick_steps.size, batch), -1, dtype=np.int64)
+        self.last_value = np.zeros(batch)
+        self.last_time = np.full(batch, -np.inf)
+        self._rows = np.arange(batch)
+        self._prev_idx = np.full(batch, -2, dtype=np.int64)  # -2: nothing evaluated yet
+        self._prev_value = np.zeros(batch)
+        self._prev_valid = np.zeros(batch, dtype=bool)
+        self.history: np.ndarray | None = None
+        # image-level stage: its per-run streams are set by start()
+        self._image = None if cfg.image is None else cfg.image.start(n, batch, lambda name: [None] * batch)
+
+    def set_config(self, cfg: CameraConfig) -> None:
+        """Use ``cfg`` (same frame rate and classifier) from now on; runs take it up when (re)started.
+
+        Per-run values that are read at every frame (scale, quantization,
+        range, exposure) apply at once to every run: the caller changes
+        only the rows it restarts (see :func:`rollrig.sim.params.put`).
+        """
+        batch = self.batch
         for obj in (cfg, cfg.bursts):
             for f in dataclasses.fields(obj) if obj is not None else ():
                 v = getattr(obj, f.name)
@@ -374,15 +405,6 @@ class CameraReader:
         self.cfg = cfg = _shared_if_equal(cfg)
         if cfg.classifier is not None and np.ndim(cfg.range_rad) and np.ptp(cfg.range_rad) > 0:
             raise ValueError("range_rad: allowed: one value for the whole batch when a classifier is set")
-        # frame-major (n + 1, batch) arrays; the spare last row (index -1)
-        # stands for "no frame yet" and is never valid
-        self._offset = np.zeros((n + 1, batch))
-        self._kept = np.zeros((n + 1, batch), dtype=bool)
-        self._cap_step = np.zeros((n + 1, batch), dtype=np.int64)
-        self.capture_time = np.full((n + 1, batch), -np.inf)
-        self.capture_step = np.zeros((batch, n), dtype=np.int64)
-        self.deliver_step = np.zeros((batch, n), dtype=np.int64)
-        self._latest = np.full((self.tick_steps.size, batch), -1, dtype=np.int64)
         self._centres = (
             None
             if cfg.classifier is None
@@ -390,22 +412,14 @@ class CameraReader:
         )
         # exposure weights per run, oldest first, padded with zeros at the old end
         exp_s = np.broadcast_to(np.asarray(cfg.exposure_s, dtype=float), (batch,))
-        ws = [stages.exposure_weights(float(e), self.dt) for e in exp_s]
+        by_value = {float(e): stages.exposure_weights(float(e), self.dt) for e in np.unique(exp_s)}
+        ws = [by_value[float(e)] for e in exp_s]
         width = max(w.size for w in ws)
         self._weights = np.zeros((width, batch))
         for r, w in enumerate(ws):
             self._weights[width - w.size :, r] = w
         same = bool(np.all(self._weights == self._weights[:, :1]))
         self._w_shared = [float(x) for x in self._weights[:, 0]] if same and batch else None
-        self.last_value = np.zeros(batch)
-        self.last_time = np.full(batch, -np.inf)
-        self._rows = np.arange(batch)
-        self._prev_idx = np.full(batch, -2, dtype=np.int64)  # -2: nothing evaluated yet
-        self._prev_value = np.zeros(batch)
-        self._prev_valid = np.zeros(batch, dtype=bool)
-        self.history: np.ndarray | None = None
-        # image-level stage: its per-run streams are set by start()
-        self._image = None if cfg.image is None else cfg.image.start(n, batch, lambda name: [None] * batch)
 
     def start(self, rows: np.ndarray, rng_for: RngFor) -> None:
         """(Re)start the runs ``rows``: new timing plan and draws from ``rng_for`` (one generator per row)."""
@@ -476,21 +490,21 @@ class CameraReader:
         ``tick`` is the local tick index and ``t`` the local time (s), each an
         int/float (every run on one clock) or ``(batch,)`` (each run's own).
         """
-        if np.ndim(tick) == 0:
-            idx = self._latest[tick].copy()  # kept as _prev_idx, which start() edits
-        else:
+        if isinstance(tick, np.ndarray):
             idx = self._latest[np.minimum(tick, self._latest.shape[0] - 1), self._rows]
+        else:
+            idx = self._latest[tick].copy()  # kept as _prev_idx, which start() edits
         rows = self._rows
-        prev = self._prev_idx
-        if (idx == prev).all():  # same frames as the last tick
+        changed = idx != self._prev_idx
+        n_new = np.count_nonzero(changed)
+        if n_new == 0:  # same frames as the last tick
             value, valid = self._prev_value, self._prev_valid
+        elif n_new == rows.size:
+            value, valid, _ = self._evaluate(idx, rows)
         else:  # evaluate only the runs whose newest frame changed
-            new = np.flatnonzero(idx != prev)
-            if new.size == rows.size:
-                value, valid, _ = self._evaluate(idx, rows)
-            else:
-                value, valid = self._prev_value.copy(), self._prev_valid.copy()
-                value[new], valid[new], _ = self._evaluate(idx[new], new)
+            new = changed.nonzero()[0]
+            value, valid = self._prev_value.copy(), self._prev_valid.copy()
+            value[new], valid[new], _ = self._evaluate(idx[new], new)
         self._prev_idx, self._prev_value, self._prev_valid = idx, value, valid
         self.last_value = np.where(valid, value, self.last_value)
         self.last_time = np.where(valid, self.capture_time[idx, rows], self.last_time)

@@ -103,6 +103,9 @@ class RateGyro:
         self.sample_at = np.full(n_steps + 1, -1, dtype=np.int64)  # sample index due at each local step
         ok = steps <= n_steps
         self.sample_at[steps[ok]] = np.arange(n)[ok]
+        self.sample_step = steps  # local step of each sample
+        # index of the newest sample due at or before each local step (-1: none yet)
+        self.newest_at = np.maximum.accumulate(self.sample_at)
         self._err = np.zeros((n, batch))
         self.value = np.zeros(batch)
         self._rows = np.arange(batch)
@@ -131,12 +134,22 @@ class RateGyro:
         if j >= 0:
             self.value = rate + self._err[j]
 
-    def sample_rows(self, k: np.ndarray, rate: np.ndarray) -> None:
-        """Take the samples due at each run's own local step ``k`` (``(batch,)``)."""
-        j = self.sample_at[np.minimum(k, self.sample_at.size - 1)]
-        due = j >= 0
-        if due.any():
-            self.value = np.where(due, rate + self._err[np.maximum(j, 0), self._rows], self.value)
+    def sample_newest(self, kl: np.ndarray, rates: np.ndarray) -> None:
+        """Take each run's newest sample due in its local steps ``kl + 1 .. kl + m``.
+
+        ``kl`` is each run's local step before the ``m`` base steps just
+        taken (``(batch,)``) and ``rates[j]`` the roll rate after step
+        ``j + 1`` (``(m, batch)``); a run's clock stops at the episode's
+        end. Only the newest sample can be read afterwards, so taking it
+        alone gives the value sampling at every step would.
+        """
+        last = self.sample_at.size - 1
+        si = self.newest_at[np.minimum(kl + rates.shape[0], last)]
+        step = self.sample_step[si]  # si = -1 picks a sample that ``due`` masks out
+        due = (si >= 0) & (step > kl)
+        if np.count_nonzero(due):
+            rate = rates[np.where(due, step - kl - 1, 0), self._rows]
+            self.value = np.where(due, rate + self._err[np.maximum(si, 0), self._rows], self.value)
 
     def read(self) -> np.ndarray:
         return self.value

@@ -121,15 +121,15 @@ def quantize(x: np.ndarray, step) -> np.ndarray:
 
     ``step`` is a float or an array that broadcasts against ``x`` (per-run values).
     """
+    if isinstance(step, float | int):  # np.rint rounds half to even, as np.round does
+        return x if step <= 0 else np.rint(x / step) * step
     s = np.asarray(step, dtype=float)
     if s.ndim == 0:
-        if s <= 0:
-            return x
-        return np.round(x / s) * s
+        return x if s <= 0 else np.rint(x / s) * s
     if not np.any(s > 0):
         return x
     with np.errstate(divide="ignore", invalid="ignore"):
-        return np.where(s > 0, np.round(x / s) * s, x)
+        return np.where(s > 0, np.rint(x / s) * s, x)
 
 
 def class_centres(width: float, range_: float) -> np.ndarray:

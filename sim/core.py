@@ -268,19 +268,10 @@ class Stepper:
         cmd = np.asarray(s.bank_cmd, dtype=float)
         self._cmd = cmd if cmd.ndim == 1 else P.per_run_rows(cmd, batch, n + 1, "bank_cmd")
         sources = [P.resolve(d, batch, "disturbance.") for d in s.disturbances]
-        self._lim = act.limit_rad
-        self._max_change = act.rate_limit_rad_s * s.dt
-        tau = act.time_constant_s
-        with np.errstate(divide="ignore", over="ignore"):
-            self._alpha = np.where(tau > 0, -np.expm1(-s.dt / np.where(tau > 0, tau, 1.0)), 1.0)
 
         # ---- state layout (rows): plant n_x, servo, noise-filter states, held command
-        self._noise = [
-            (src, src.noise_filter(s.dt, batch)) for src in sources if isinstance(src, ShapedNoise)
-        ]
-        self._signals = [src for src in sources if not isinstance(src, ShapedNoise)]
-        ns = sum(f.n_states for _, f in self._noise)
-        self._ns = ns
+        self._set_sources(sources)
+        ns = self._ns
         nrow = nx + 2 + ns
         self._nrow = nrow
         f0 = nx + 1  # first filter row
@@ -292,16 +283,9 @@ class Stepper:
             coupling[:, i : i + f.n_states] = bd @ f.out
             filt[i : i + f.n_states, i : i + f.n_states] = f.phi
             i += f.n_states
-        self._groups = []
-        for value in np.unique(tau):
-            m = np.zeros((nrow - 1, nrow))
-            sp = _servo_plant_matrix(s.plant, self._dp, float(value), s.dt)
-            m[: nx + 1, : nx + 1] = sp[:, : nx + 1]
-            m[: nx + 1, nrow - 1] = sp[:, nx + 1]
-            m[:nx, f0 : f0 + ns] = coupling
-            m[f0 : f0 + ns, f0 : f0 + ns] = filt
-            rows = np.flatnonzero(tau == value)
-            self._groups.append((np.ascontiguousarray(m), None if rows.size == batch else rows))
+        self._coupling, self._filt = coupling, filt
+        self._servo_cache: dict[float, np.ndarray] = {}
+        self._set_actuator(act)
         # the plant step redone for runs whose servo limit binds: [plant; filters] -> plant
         self._redo_idx = np.r_[np.arange(nx), np.arange(f0, f0 + ns)].astype(np.int64)
         self._redo = np.ascontiguousarray(np.hstack([self._dp.ad, coupling]))
@@ -358,7 +342,74 @@ class Stepper:
         self._obs = self._make_obs()
         return self._obs
 
-    def restart(self, rows: Sequence[int] | np.ndarray, run_indices: Sequence[int]) -> Observation:
+    def _set_sources(self, sources: list) -> None:
+        """Resolved disturbance sources: shaped noise (with its filters) and deterministic signals."""
+        s = self.setup
+        self._sources = sources
+        self._noise = [
+            (src, src.noise_filter(s.dt, self.batch)) for src in sources if isinstance(src, ShapedNoise)
+        ]
+        self._signals = [src for src in sources if not isinstance(src, ShapedNoise)]
+        self._ns = sum(f.n_states for _, f in self._noise)
+
+    def _set_actuator(self, act) -> None:
+        """Servo limits and the step matrices, one per distinct servo time constant."""
+        s, nx, nrow, ns = self.setup, self._nx, self._nrow, self._ns
+        f0 = nx + 1
+        self._act = act
+        self._lim = act.limit_rad
+        self._max_change = act.rate_limit_rad_s * s.dt
+        tau = act.time_constant_s
+        with np.errstate(divide="ignore", over="ignore"):
+            self._alpha = np.where(tau > 0, -np.expm1(-s.dt / np.where(tau > 0, tau, 1.0)), 1.0)
+        self._groups = []
+        for value in np.unique(tau):
+            m = self._servo_cache.get(float(value))
+            if m is None:
+                m = np.zeros((nrow - 1, nrow))
+                sp = _servo_plant_matrix(s.plant, self._dp, float(value), s.dt)
+                m[: nx + 1, : nx + 1] = sp[:, : nx + 1]
+                m[: nx + 1, nrow - 1] = sp[:, nx + 1]
+                m[:nx, f0 : f0 + ns] = self._coupling
+                m[f0 : f0 + ns, f0 : f0 + ns] = self._filt
+                m = self._servo_cache[float(value)] = np.ascontiguousarray(m)
+            rows = np.flatnonzero(tau == value)
+            self._groups.append((m, None if rows.size == self.batch else rows))
+
+    def _adopt(self, new: LoopSetup, rows: np.ndarray) -> None:
+        """Take the per-run values of ``rows`` from ``new`` (same structure); the other rows keep theirs."""
+        s, b, nx = self.setup, self.batch, self._nx
+        if new is s:
+            return
+        shared = ("dt", "n_steps", "ctrl_every", "divergence_rad")
+        if any(getattr(new, k) != getattr(s, k) for k in shared) or not _same_plant(new.plant, s.plant):
+            raise ValueError(f"restart: the new setup must share {', '.join(shared)} and the plant")
+        if len(new.disturbances) != len(s.disturbances):
+            raise ValueError("restart: the new setup must have the same disturbance sources")
+        self._x0 = self._x0.copy()
+        self._x0[rows] = P.per_run_rows(new.x0, b, nx, "x0")[rows]
+        cmd = np.asarray(new.bank_cmd, dtype=float)
+        if not (cmd.ndim == 1 and self._cmd.ndim == 1 and np.array_equal(cmd, self._cmd)):
+            width = s.n_steps + 1
+            full = np.array(P.per_run_rows(self._cmd, b, width, "bank_cmd"))
+            full[rows] = P.per_run_rows(cmd, b, width, "bank_cmd")[rows]
+            self._cmd = full
+        self._set_actuator(P.put(self._act, new.actuator, rows, b, "actuator."))
+        self.camera.set_config(P.put(self.camera.cfg, new.camera, rows, b, "camera."))
+        if self.gyro is not None:
+            self.gyro.cfg = P.put(self.gyro.cfg, new.gyro, rows, b, "gyro.")
+        sources = [
+            P.put(old, src, rows, b, "disturbance.")
+            for old, src in zip(self._sources, new.disturbances, strict=True)
+        ]
+        self._set_sources(sources)
+
+    def restart(
+        self,
+        rows: Sequence[int] | np.ndarray,
+        run_indices: Sequence[int],
+        setup: LoopSetup | None = None,
+    ) -> Observation:
         """Start a new episode for batch rows ``rows`` with run indices ``run_indices``.
 
         The other rows go on. Row ``r`` then evolves bit for bit as a fresh
@@ -368,6 +419,13 @@ class Stepper:
         (between :meth:`advance` calls); the controller's state for those
         rows is the caller's to restart. Returns the observation at this tick
         (unchanged for the other rows).
+
+        With ``setup`` (the same structure as the current one: step,
+        duration, controller rate, plant, disturbance sources), the
+        restarted rows take their per-run values (initial state, command,
+        servo, camera, gyro, disturbance intensities) from it: a restarted
+        row then evolves as a fresh run of ``setup`` would. The other rows
+        keep the values they started with; :attr:`setup` stays the first one.
         """
         rows = np.asarray(rows, dtype=np.int64).reshape(-1)
         new_runs = np.asarray(run_indices, dtype=np.int64).reshape(-1)
@@ -377,6 +435,8 @@ class Stepper:
             return self._obs
         if np.any(rows < 0) or np.any(rows >= self.batch) or np.unique(rows).size != rows.size:
             raise ValueError(f"restart: rows must be distinct, in 0..{self.batch - 1}")
+        if setup is not None:
+            self._adopt(setup, rows)
         self.runs[rows] = new_runs
         self._start[rows] = self.k
         self._uniform = bool(np.all(self._start == self._start[0]))
@@ -494,7 +554,9 @@ class Stepper:
         if self._uniform:
             kl = min(self.k - self._start0, n)
             tick, t = kl // every, kl * s.dt
-            cmd = np.full(self.batch, self._cmd[kl]) if self._cmd.ndim == 1 else self._cmd[:, kl].copy()
+            cmd = (
+                self._cmd[kl : kl + 1].repeat(self.batch) if self._cmd.ndim == 1 else self._cmd[:, kl].copy()
+            )
         else:
             kl = self.episode_step
             tick, t = kl // every, kl * s.dt
@@ -521,7 +583,7 @@ class Stepper:
         u = np.asarray(u_cmd, dtype=float)
         if u.shape != (self.batch,):
             u = np.broadcast_to(u, (self.batch,))
-        if not np.isfinite(u).all():
+        if np.count_nonzero(np.isfinite(u)) != u.size:
             bad_u = ~np.isfinite(u)
             self._diverge(bad_u)
             u = np.where(bad_u, 0.0, u)
@@ -537,8 +599,10 @@ class Stepper:
             steps = int(min(every, max(n - kl.min(), 0)))
             if steps == 0:
                 return None
-            left = np.clip(n - kl, 0, every)  # steps each run still moves this tick
-            moving = None if np.all(left >= steps) else left
+            if int(kl.max()) + steps <= n:  # every run moves the whole tick
+                moving = None
+            else:
+                moving = left = np.minimum(np.maximum(n - kl, 0), every)  # steps each run still moves
         tick = kl // every
         self._record_tick(tick, u)
 
@@ -550,8 +614,8 @@ class Stepper:
             S[:steps, -1] = u
             # While the command is held the lag's per-step change only shrinks,
             # so a run can meet a limit in this tick only if it does at its start.
-            near = np.flatnonzero((np.abs(u) > lim) | (self._alpha * np.abs(u - S[0, nx]) > mc))
-        frozen = not self.alive.all()
+            near = ((np.abs(u) > lim) | (self._alpha * np.abs(u - S[0, nx]) > mc)).nonzero()[0]
+        frozen = np.count_nonzero(self.alive) != self.batch
         w_lo, w_hi = self._w_lo, self._w_hi
         single = self._groups[0][0] if len(self._groups) == 1 else None
         for j in range(steps):
@@ -574,7 +638,7 @@ class Stepper:
         self._record_steps(kl, steps)
         self.k += steps
         inside = np.abs(S[0, self._phi]) < s.divergence_rad
-        if not inside.all():
+        if np.count_nonzero(inside) != self.batch:
             self._diverge(~inside)
         if self.done:
             return None
@@ -605,7 +669,7 @@ class Stepper:
         """Record the tick's base steps 1..steps (each run at its local step) and sample the gyro."""
         S, nx, n = self._S, self._nx, self.setup.n_steps
         g = self.gyro
-        if np.ndim(kl) == 0:
+        if not isinstance(kl, np.ndarray):  # every run on one clock
             sl = slice(kl + 1, kl + steps + 1)
             self.rec_bank[sl] = S[1 : steps + 1, self._phi]
             if self.rec_ail is not None:
@@ -614,25 +678,24 @@ class Stepper:
                 self.rec_rate[sl] = S[1 : steps + 1, self._p]
             if self.rec_states is not None:
                 self.rec_states[sl] = S[1 : steps + 1, :nx].transpose(0, 2, 1)
-            if g is not None:
-                due = g.sample_at[kl + 1 : kl + steps + 1]
-                hit = np.flatnonzero(due >= 0)
-                if hit.size:  # only the newest sample of the tick is ever read
-                    j = int(hit[-1])
-                    g.sample(kl + 1 + j, S[j + 1, self._p])
+            if g is not None:  # only the newest sample of the tick is ever read
+                due = g.sample_at
+                for j in range(steps, 0, -1):
+                    if due[kl + j] >= 0:
+                        g.sample(kl + j, S[j, self._p])
+                        break
             return
         ar = self._ar
-        for j in range(1, steps + 1):
-            k = np.minimum(kl + j, n)
-            self.rec_bank[k, ar] = S[j, self._phi]
-            if self.rec_ail is not None:
-                self.rec_ail[k, ar] = S[j, nx]
-            if self.rec_rate is not None:
-                self.rec_rate[k, ar] = S[j, self._p]
-            if self.rec_states is not None:
-                self.rec_states[k, ar] = S[j, :nx].T
-            if g is not None:
-                g.sample_rows(k, S[j, self._p])
+        k = np.minimum(kl[None, :] + np.arange(1, steps + 1)[:, None], n)  # (steps, batch) local steps
+        self.rec_bank[k, ar] = S[1 : steps + 1, self._phi]  # a stopped run rewrites its last value
+        if self.rec_ail is not None:
+            self.rec_ail[k, ar] = S[1 : steps + 1, nx]
+        if self.rec_rate is not None:
+            self.rec_rate[k, ar] = S[1 : steps + 1, self._p]
+        if self.rec_states is not None:
+            self.rec_states[k, ar] = S[1 : steps + 1, :nx].transpose(0, 2, 1)
+        if g is not None:
+            g.sample_newest(kl, S[1 : steps + 1, self._p])
 
     def _perturbed_command(self, kl, u: np.ndarray) -> np.ndarray:
         """Aileron command reaching the servo at local step ``kl`` with the margin perturbation."""
@@ -655,17 +718,29 @@ class Stepper:
         the free one, which last-bit rounding would flip).
         """
         nx = self._nx
-        lim, mc = self._lim[rows], self._max_change[rows]
-        before, free = X[nx, rows], Y[nx, rows]
+        if rows.size == X.shape[1]:  # every run: slices, no gathers
+            lim, mc, before, free = self._lim, self._max_change, X[nx], Y[nx]
+        else:
+            lim, mc, before, free = self._lim[rows], self._max_change[rows], X[nx, rows], Y[nx, rows]
         bind = (np.abs(free - before) > mc) | (np.abs(free) > lim)
-        if bind.any():
+        hits = np.count_nonzero(bind)
+        if hits == 0:
+            return
+        if hits < bind.size:
             r = rows[bind]
-            b, f, lm, m = before[bind], free[bind], lim[bind], mc[bind]
-            change = np.minimum(np.maximum(f - b, -m), m)
-            clipped = np.minimum(np.maximum(b + change, -lm), lm)
-            mean = 0.5 * (b + clipped)  # straight-line servo motion
-            Y[:nx, r] = matmul_cols(self._redo, X[self._redo_idx][:, r]) + self._b_ail[:, None] * mean
-            Y[nx, r] = clipped
+            before, free, lim, mc = before[bind], free[bind], lim[bind], mc[bind]
+            x = X[self._redo_idx[:, None], r]
+        elif rows.size == X.shape[1]:
+            r = slice(None)
+            x = X[self._redo_idx]
+        else:
+            r = rows
+            x = X[self._redo_idx[:, None], r]
+        change = np.minimum(np.maximum(free - before, -mc), mc)
+        clipped = np.minimum(np.maximum(before + change, -lim), lim)
+        mean = 0.5 * (before + clipped)  # straight-line servo motion
+        Y[:nx, r] = matmul_cols(self._redo, x) + self._b_ail[:, None] * mean
+        Y[nx, r] = clipped
 
     def _block_row(self, k: int) -> np.ndarray:
         """Disturbance inputs of global step ``k`` (rows ``[w_lo, w_hi)`` of the state)."""
@@ -735,6 +810,12 @@ class Stepper:
             run_index=self.runs.copy(),
             seed=self.seed,
         )
+
+
+def _same_plant(a, b) -> bool:
+    if a is b:
+        return True
+    return all(np.array_equal(getattr(a, k), getattr(b, k)) for k in ("a", "b_control", "b_disturbance"))
 
 
 def _take_filter(f, rows: np.ndarray):

@@ -61,7 +61,7 @@ import dataclasses
 
 import numpy as np
 
-__all__ = ["PER_RUN", "per_run", "per_run_rows", "resolve", "take", "batch_size_of", "any_positive"]
+__all__ = ["PER_RUN", "per_run", "per_run_rows", "resolve", "take", "put", "batch_size_of", "any_positive"]
 
 #: Per-run fields of each parameter class (by class name), see the module table.
 PER_RUN: dict[str, tuple[str, ...]] = {
@@ -197,6 +197,54 @@ def take(obj, rows: np.ndarray):
         if sub is not None:
             changes[name] = take(sub, rows)
     return _replace(obj, changes)
+
+
+def put(old, new, rows: np.ndarray, batch: int, where: str = ""):
+    """``old`` with the per-run values of batch rows ``rows`` taken from ``new``.
+
+    Both are parameter objects of the same class for a batch of ``batch``
+    runs (scalars or ``(batch,)`` arrays, resolved or not). The result has
+    every per-run field as a fresh ``(batch,)`` array: row ``rows[i]`` holds
+    ``new``'s value there, every other row keeps ``old``'s. Fields that are
+    shared by the batch (structural) must be equal in both.
+
+    Raises
+    ------
+    ValueError
+        When the two differ in a shared field, or one sets a field the other leaves ``None``.
+    """
+    if old is None and new is None:
+        return None
+    if old is None or new is None or type(old) is not type(new):
+        raise ValueError(f"{where}: the new parameters must have the structure of the old ones")
+    names, nested = _fields(old)
+    prefix = f"{where}{type(old).__name__}."
+    changes = {}
+    for f in dataclasses.fields(old):
+        a, b = getattr(old, f.name), getattr(new, f.name)
+        if f.name in names:
+            if (a is None) != (b is None):
+                raise ValueError(f"{prefix}{f.name}: set in one setup and None in the other")
+            if a is not None:
+                merged = per_run(a, batch, prefix + f.name)
+                merged[rows] = per_run(b, batch, prefix + f.name)[rows]
+                changes[f.name] = merged
+        elif f.name in nested:
+            changes[f.name] = put(a, b, rows, batch, prefix)
+        elif not _same(a, b):
+            raise ValueError(f"{prefix}{f.name}: shared by the batch; allowed: the same value in both setups")
+    return _replace(old, changes)
+
+
+def _same(a, b) -> bool:
+    if a is b:
+        return True
+    if isinstance(a, np.ndarray) or isinstance(b, np.ndarray):
+        return np.shape(a) == np.shape(b) and bool(np.all(np.asarray(a) == np.asarray(b)))
+    try:
+        return bool(a == b)
+    except ValueError:  # objects holding arrays
+        return False
 
 
 def _replace(obj, changes: dict):

@@ -176,6 +176,74 @@ def test_restarted_rows_evolve_as_fresh_runs(restart_tick):
     assert st.finished.all()
 
 
+def _dispersed(setup, k: float):
+    """``setup`` with every kind of per-run value changed by the factor ``k`` (same structure)."""
+    from dataclasses import replace
+
+    cam = replace(setup.camera, latency_s=0.05 * k, noise_rad=D(0.3) * k, dropout_prob=0.05 * k)
+    turb, moment, gust = setup.disturbances[1], setup.disturbances[0], setup.disturbances[2]
+    p = turb.params
+    turb = replace(turb, params=replace(p, sigma_v_mps=p.sigma_v_mps * k, sigma_w_mps=p.sigma_w_mps * k))
+    x0 = np.zeros(setup.plant.n_states)
+    x0[setup.plant.phi_index] = D(10.0) * k
+    return replace(
+        setup,
+        actuator=ActuatorSpec(0.08 * k, D(20), D(60) * k),
+        camera=cam,
+        gyro=replace(setup.gyro, noise_rad_s=setup.gyro.noise_rad_s * k),
+        bank_cmd=setup.bank_cmd * k,
+        x0=x0,
+        disturbances=(replace(moment, accel_rad_s2=0.1 * k), turb, replace(gust, amplitude=0.5 * k)),
+    )
+
+
+@pytest.mark.parametrize("restart_tick", [0, 61])
+def test_restart_with_a_new_setup_gives_rows_its_per_run_values(restart_tick):
+    """restart(rows, runs, setup=...) makes a restarted row a fresh run of the new setup, bit for bit
+    (servo, camera, gyro, command, initial state, every disturbance's intensity), while the others
+    go on with the values they started with."""
+    base = everything_setup(300)
+    other = _dispersed(base, 1.5)
+    seed = 5
+    st = Stepper(base)
+    ctrl = pid()
+    obs = st.reset(seed, [0, 1, 2], record="none")
+    ctrl.reset(3)
+    seen = {r: [] for r in range(3)}
+
+    def log():
+        for r in range(3):
+            seen[r].append((st.bank[r], st.aileron[r], obs.bank[r], obs.age[r], obs.rate[r], obs.bank_cmd[r]))
+
+    for _ in range(restart_tick):
+        log()
+        obs = st.advance(ctrl.step(obs))
+    before = {r: list(seen[r]) for r in range(3)}
+    seen = {r: [] for r in range(3)}
+    obs = st.restart([1], [8], setup=other)
+    ctrl.reset_rows([1])
+    while obs is not None:
+        log()
+        obs = st.advance(ctrl.step(obs))
+    fresh8 = _local_history(other, 8, seed, 150)
+    assert seen[1][: len(fresh8)] == fresh8
+    assert fresh8 != _local_history(base, 8, seed, 150)  # the new values did change the run
+    fresh0 = _local_history(base, 0, seed, 150)
+    assert before[0] + seen[0][: 150 - restart_tick] == fresh0  # row 0 kept its values
+
+
+def test_restart_refuses_a_setup_of_another_structure():
+    from dataclasses import replace
+
+    base = everything_setup(50)
+    st = Stepper(base)
+    st.reset(0, range(2))
+    with pytest.raises(ValueError, match="ctrl_every"):
+        st.restart([0], [3], setup=replace(base, ctrl_every=5))
+    with pytest.raises(ValueError, match="frame_rate_hz"):
+        st.restart([0], [3], setup=replace(base, camera=replace(base.camera, frame_rate_hz=20.0)))
+
+
 def test_restart_rejects_bad_rows():
     st = Stepper(everything_setup(50))
     st.reset(0, range(2))

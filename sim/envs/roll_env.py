@@ -53,14 +53,13 @@ def observation_space(layout: ObservationLayout) -> gym.spaces.Box:
     return gym.spaces.Box(lo.astype(np.float32), hi.astype(np.float32), dtype=np.float32)
 
 
-def step_reward(
-    bank: np.ndarray, cmd: np.ndarray, a: np.ndarray, a_prev: np.ndarray, bank_limit_rad: float
-) -> np.ndarray:
-    """Reward of one tick (see :class:`RollHoldEnv`); arrays ``(batch,)``."""
+def step_reward(bank, cmd, a, a_prev, bank_limit_rad: float):
+    """Reward of one tick (see :class:`RollHoldEnv`); arrays ``(batch,)`` or floats (same bits)."""
     w = RewardWeights
     err = (cmd - bank) / math.radians(30.0)
     near = np.maximum(np.abs(bank) / bank_limit_rad - w.near_limit_from, 0.0) / (1.0 - w.near_limit_from)
-    return -(err * err + w.effort * a * a + w.rate * (a - a_prev) ** 2 + w.near_limit * near * near)
+    da = a - a_prev
+    return -(err * err + w.effort * a * a + w.rate * da * da + w.near_limit * near * near)
 
 
 class RollHoldEnv(gym.Env):
@@ -130,6 +129,8 @@ class RollHoldEnv(gym.Env):
         self.action_scale_rad = self.scenario.actuator.limit_rad
         self.bank_limit_rad = self.scenario.criteria.bank_limit_rad
         self.n_ticks = len(self.base.tick_steps)
+        self.n_steps = self.base.n_steps
+        self._every = self.base.ctrl_every
         self._stepper: Stepper | None = None
 
     # ------------------------------------------------------------------ API
@@ -142,21 +143,21 @@ class RollHoldEnv(gym.Env):
         self._stepper = Stepper(setup)
         obs = self._stepper.reset(self.scenario.run.seed, [self.draw.run_index], record="none")
         self.builder.reset(1)
-        self._prev = np.zeros(1)
+        self._prev = 0.0
         self._tick = 0
         self._last = obs
-        return self._vector(obs), self._info()
+        return self._vector(obs), self._info(0.0, float(self._stepper.bank[0]))
 
     def step(self, action):
         st = self._stepper
-        a = np.clip(np.asarray(action, dtype=float).reshape(1), -1.0, 1.0)
-        obs = st.advance(a * self.action_scale_rad)
+        a = min(max(float(np.asarray(action, dtype=float).reshape(1)[0]), -1.0), 1.0)  # NaN stays NaN
+        obs = st.advance(np.array([a * self.action_scale_rad]))
         self._tick += 1
-        k = int(st.episode_step[0])
-        bank = st.bank.copy()
-        cmd = st.setup.bank_cmd[k]
-        reward = float(step_reward(bank, cmd, a, self._prev, self.bank_limit_rad)[0])
-        terminated = bool(abs(bank[0]) > self.bank_limit_rad or not st.alive[0])
+        k = min(self._tick * self._every, self.n_steps)  # the run's local step (never restarted)
+        bank = float(st.bank[0])
+        cmd = float(st.setup.bank_cmd[k])
+        reward = float(step_reward(bank, cmd, a, self._prev, self.bank_limit_rad))
+        terminated = bool(abs(bank) > self.bank_limit_rad or not st.alive[0])
         truncated = obs is None and not terminated
         if terminated:
             reward -= RewardWeights.termination * (self.n_ticks - self._tick)
@@ -164,7 +165,7 @@ class RollHoldEnv(gym.Env):
             obs = aged_observation(self._last, k * st.setup.dt, cmd)
         self._prev = a
         self._last = obs
-        return self._vector(obs), reward, terminated, truncated, self._info()
+        return self._vector(obs), reward, terminated, truncated, self._info(k * st.setup.dt, bank)
 
     def render(self):
         if self.render_mode != "rgb_array":
@@ -185,6 +186,5 @@ class RollHoldEnv(gym.Env):
     def _vector(self, obs: Observation) -> np.ndarray:
         return self.builder(obs, self._prev)[0]
 
-    def _info(self) -> dict:
-        st = self._stepper
-        return {"t_s": float(st.episode_time_s[0]), "bank_true_rad": float(st.bank[0])}
+    def _info(self, t_s: float, bank: float) -> dict:
+        return {"t_s": t_s, "bank_true_rad": bank}

@@ -12,15 +12,12 @@ Autoreset follows gymnasium 1.x's ``NEXT_STEP`` mode (declared in
 returns that member's first observation of a new episode, with reward 0 and
 neither flag set, and ignores its action.
 
-Restarting members. Members that start a new episode at the same step
-form a *cohort*: one batched core whose per-run parameters (initial bank,
-camera latency, noise and frame losses, disturbance intensity) are that
-cohort's draws; the command is scaled here. Cohorts are stepped one after
-another and dropped when their last member ends. With episodes of equal
-length (truncation at the scenario's duration) every member stays in one
-cohort; early terminations split them. (The core's own per-row
-``restart`` keeps a row's parameters, so it cannot start an episode with
-newly drawn ones; a cohort can.)
+Restarting members. Each member is one row of the batched core, with its
+own clock. A member whose episode ended is restarted on its own with
+:meth:`Stepper.restart <rollrig.sim.core.Stepper.restart>`, given a setup
+that holds its newly drawn per-run values (initial bank, command scale,
+camera latency, noise and frame losses, disturbance intensity); the other
+members go on untouched.
 """
 
 from __future__ import annotations
@@ -39,58 +36,10 @@ from rollrig.controllers.policy import ObservationBuilder, ObservationLayout
 from ..build import build_setup
 from ..core import Stepper
 from ..scenario import Scenario
-from .episode import EpisodeDraw, aged_observation, as_scenario, check_ranges, draw_episode, scale_disturbance
+from .episode import aged_observation, as_scenario, check_ranges, draw_episode, scale_disturbance
 from .roll_env import RewardWeights, observation_space, step_reward
 
 __all__ = ["RollHoldVectorEnv"]
-
-
-class _Cohort:
-    """Members that started their episodes together, on one batched core with per-run parameters."""
-
-    def __init__(self, env: RollHoldVectorEnv, members: np.ndarray, draws: list[EpisodeDraw]) -> None:
-        self.members = members
-        self.active = np.ones(members.size, dtype=bool)
-        base, d0 = env.base, draws[0]
-
-        def col(key: str) -> np.ndarray:
-            return np.array([getattr(d, key) for d in draws])
-
-        changes = {}
-        if d0.initial_bank_deg is not None:
-            x0 = np.tile(np.asarray(base.x0, dtype=float), (len(draws), 1))
-            x0[:, env.scenario.plant.phi_index] = np.radians(col("initial_bank_deg"))
-            changes["x0"] = x0
-        cam = {}
-        if d0.noise_deg is not None:
-            cam["noise_rad"] = np.radians(col("noise_deg"))
-        if d0.latency_s is not None:
-            cam["latency_s"] = col("latency_s")
-        if d0.dropout_prob is not None:
-            cam["dropout_prob"] = col("dropout_prob")
-        if cam:
-            changes["camera"] = replace(base.camera, **cam)
-        if d0.turbulence_scale is not None:
-            scale = col("turbulence_scale")
-            changes["disturbances"] = tuple(scale_disturbance(s, scale) for s in base.disturbances)
-        setup = replace(base, **changes) if changes else base
-        self.cmd_scale = None if d0.command_scale is None else col("command_scale")
-        self.stepper = Stepper(setup)
-        obs = self.stepper.reset(env.scenario.run.seed, [d.run_index for d in draws], record="none")
-        self.builder = ObservationBuilder(env.layout)
-        self.builder.reset(members.size)
-        self.prev = np.zeros(members.size)
-        self.tick = 0
-        self.last = self._commanded(obs)
-
-    def _commanded(self, obs: Observation) -> Observation:
-        if self.cmd_scale is None:
-            return obs
-        k = int(self.stepper.episode_step[0])  # members of a cohort share one clock
-        return replace(obs, bank_cmd=self.stepper.setup.bank_cmd[k] * self.cmd_scale)
-
-    def vectors(self, obs: Observation) -> np.ndarray:
-        return self.builder(obs, self.prev)
 
 
 class RollHoldVectorEnv(gym.vector.VectorEnv):
@@ -126,10 +75,11 @@ class RollHoldVectorEnv(gym.vector.VectorEnv):
         self.bank_limit_rad = self.scenario.criteria.bank_limit_rad
         self.n_ticks = len(self.base.tick_steps)
         self._rngs: list[np.random.Generator | None] = [None] * self.num_envs
-        self._cohorts: list[_Cohort] = []
+        self._builder = ObservationBuilder(self.layout)
         self._ended = np.zeros(self.num_envs, dtype=bool)
         self._ranges = self.ranges
         self._run_index = None
+        self._cmd_scale = None
 
     # ------------------------------------------------------------------ API
     def reset(self, *, seed: int | list[int | None] | None = None, options: dict | None = None):
@@ -150,61 +100,101 @@ class RollHoldVectorEnv(gym.vector.VectorEnv):
             check_ranges(options["randomize"], "options") if "randomize" in options else self.ranges
         )
         self._run_index = options.get("run_index")
-        self._cohorts = []
-        self._ended[:] = False
-        obs = np.empty((n, self.layout.size), dtype=np.float32)
-        self._start(np.arange(n), obs)
-        return obs, {}
+        self._draws = [draw_episode(self._rngs[i], self._ranges, self._run_index) for i in range(n)]
+        self._stepper = Stepper(self._setup())
+        obs = self._stepper.reset(self.scenario.run.seed, [d.run_index for d in self._draws], record="none")
+        self._builder.reset(n)
+        self._prev = np.zeros(n)
+        self._tick = np.zeros(n, dtype=np.int64)
+        self._ended = np.zeros(n, dtype=bool)
+        self._last = obs
+        return self._builder(obs, self._prev), {}
 
     def step(self, actions):
-        n = self.num_envs
-        a_all = np.clip(np.asarray(actions, dtype=float).reshape(n), -1.0, 1.0)
-        obs = np.empty((n, self.layout.size), dtype=np.float32)
-        reward = np.zeros(n)
-        term = np.zeros(n, dtype=bool)
-        trunc = np.zeros(n, dtype=bool)
-        restart = np.flatnonzero(self._ended)
-        for c in self._cohorts:
-            self._advance(c, a_all, obs, reward, term, trunc)
-        self._cohorts = [c for c in self._cohorts if c.active.any()]
-        if restart.size:
-            self._start(restart, obs)
+        n, st = self.num_envs, self._stepper
+        a = np.minimum(np.maximum(np.asarray(actions, dtype=float).reshape(n), -1.0), 1.0)  # as np.clip
+        ended = self._ended
+        any_ended = bool(ended.any())
+        if any_ended:  # their action is ignored; they restart after this advance
+            a = np.where(ended, 0.0, a)
+        nxt = st.advance(a * self.action_scale_rad)
+        self._tick += 1
+        k = st.episode_step
+        bank = st.bank.copy()
+        cmd = self._command_at(k)
+        reward = step_reward(bank, cmd, a, self._prev, self.bank_limit_rad)
+        term = (np.abs(bank) > self.bank_limit_rad) | ~st.alive
+        reward = np.where(term, reward - RewardWeights.termination * (self.n_ticks - self._tick), reward)
+        trunc = st.finished & ~term
+        self._prev = a
+        if any_ended:
+            rows = ended.nonzero()[0]
+            for i in rows:
+                self._draws[i] = draw_episode(self._rngs[i], self._ranges, self._run_index)
+            nxt = st.restart(rows, [self._draws[i].run_index for i in rows], setup=self._setup())
+            self._builder.restart(rows)
+            self._prev[rows] = 0.0
+            self._tick[rows] = 0
+            reward[rows] = 0.0
+            term[rows] = False
+            trunc[rows] = False
+        # members at the end of their episode see their last reading, one tick older
+        over = st.finished & ~ended if any_ended else st.finished
+        if over.any():
+            aged = aged_observation(self._last, k * st.setup.dt, cmd)
+            nxt = aged if nxt is None else _merge(over, aged, nxt)
+        self._last = nxt
         self._ended = term | trunc
-        return obs, reward, term, trunc, {}
+        return self._builder(nxt, self._prev), reward, term, trunc, {}
 
     # ------------------------------------------------------------- helpers
-    def _start(self, members: np.ndarray, obs: np.ndarray) -> None:
-        draws = [draw_episode(self._rngs[i], self._ranges, self._run_index) for i in members]
-        c = _Cohort(self, members, draws)
-        obs[c.members] = c.vectors(c.last)
-        self._cohorts.append(c)
+    def _setup(self):
+        """The core's setup with every member's current draws as per-run values."""
+        base, d0, draws = self.base, self._draws[0], self._draws
 
-    def _advance(self, c: _Cohort, a_all, obs, reward, term, trunc) -> None:
-        st = c.stepper
-        a = np.where(c.active, a_all[c.members], 0.0)
-        nxt = st.advance(a * self.action_scale_rad)
-        c.tick += 1
-        k = int(st.episode_step[0])
-        bank = st.bank.copy()
-        cmd = st.setup.bank_cmd[k]
-        if c.cmd_scale is not None:
-            cmd = cmd * c.cmd_scale
-        r = step_reward(bank, cmd, a, c.prev, self.bank_limit_rad)
-        t_end = (np.abs(bank) > self.bank_limit_rad) | ~st.alive
-        r = np.where(t_end, r - RewardWeights.termination * (self.n_ticks - c.tick), r)
-        if nxt is None:
-            nxt = aged_observation(c.last, k * st.setup.dt, cmd)
-            tr_end = ~t_end
-        else:
-            nxt = c._commanded(nxt)
-            tr_end = np.zeros(a.size, dtype=bool)
-        c.prev = a
-        c.last = nxt
-        vec = c.vectors(nxt)
-        live = c.active
-        m = c.members[live]
-        obs[m] = vec[live]
-        reward[m] = r[live]
-        term[m] = t_end[live]
-        trunc[m] = tr_end[live]
-        c.active = live & ~(t_end | tr_end)
+        def col(key: str) -> np.ndarray:
+            return np.array([getattr(d, key) for d in draws])
+
+        changes = {}
+        if d0.initial_bank_deg is not None:
+            x0 = np.tile(np.asarray(base.x0, dtype=float), (len(draws), 1))
+            x0[:, self.scenario.plant.phi_index] = np.radians(col("initial_bank_deg"))
+            changes["x0"] = x0
+        if d0.command_scale is not None:
+            changes["bank_cmd"] = np.asarray(base.bank_cmd)[None, :] * col("command_scale")[:, None]
+        cam = {}
+        if d0.noise_deg is not None:
+            cam["noise_rad"] = np.radians(col("noise_deg"))
+        if d0.latency_s is not None:
+            cam["latency_s"] = col("latency_s")
+        if d0.dropout_prob is not None:
+            cam["dropout_prob"] = col("dropout_prob")
+        if cam:
+            changes["camera"] = replace(base.camera, **cam)
+        if d0.turbulence_scale is not None:
+            scale = col("turbulence_scale")
+            changes["disturbances"] = tuple(scale_disturbance(s, scale) for s in base.disturbances)
+        self._cmd_scale = None if d0.command_scale is None else col("command_scale")
+        return replace(base, **changes) if changes else base
+
+    def _command_at(self, k: np.ndarray) -> np.ndarray:
+        """Each member's bank command at its local step ``k`` (rad)."""
+        cmd = np.asarray(self.base.bank_cmd)[k]
+        return cmd if self._cmd_scale is None else cmd * self._cmd_scale
+
+
+def _merge(rows: np.ndarray, a: Observation, b: Observation) -> Observation:
+    """Observation taking ``a``'s values where ``rows`` is set and ``b``'s elsewhere."""
+
+    def pick(x, y):
+        return None if x is None else np.where(rows, x, y)
+
+    return Observation(
+        t=np.where(rows, a.t, b.t),
+        dt=b.dt,
+        bank=pick(a.bank, b.bank),
+        valid=pick(a.valid, b.valid),
+        age=pick(a.age, b.age),
+        bank_cmd=pick(a.bank_cmd, b.bank_cmd),
+        rate=pick(a.rate, b.rate),
+    )
