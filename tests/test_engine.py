@@ -136,44 +136,44 @@ def _local_history(setup, run: int, seed: int, n_ticks: int):
     return out
 
 
+def _restart_and_log(setup, seed: int, restart_tick: int, rows, runs, new_setup=None):
+    """Three rows of ``setup``; after ``restart_tick`` ticks restart ``rows`` with ``runs``
+    (and ``new_setup``), and go on to the end. Returns each row's log before and after."""
+    st = Stepper(setup)
+    ctrl = pid()
+    obs = st.reset(seed, [0, 1, 2], record="none")
+    ctrl.reset(3)
+    seen = {r: [] for r in range(3)}
+    before = None
+    for tick in range(10**6):
+        if tick == restart_tick:
+            before, seen = seen, {r: [] for r in range(3)}
+            obs = st.restart(rows, runs, setup=new_setup)
+            ctrl.reset_rows(rows)
+            steps_after_restart = st.episode_step.copy()
+        if obs is None:
+            break
+        for r in range(3):
+            seen[r].append((st.bank[r], st.aileron[r], obs.bank[r], obs.age[r], obs.rate[r], obs.bank_cmd[r]))
+        obs = st.advance(ctrl.step(obs))
+    assert st.finished.all()
+    return before, seen, steps_after_restart
+
+
 @pytest.mark.parametrize("restart_tick", [0, 37, 140])
 def test_restarted_rows_evolve_as_fresh_runs(restart_tick):
     """After restart(rows, runs) each row replays a fresh single run with its run index, bit for bit,
     while the other rows go on unchanged (camera plan, disturbances, gyro and command restart)."""
     setup = everything_setup(300)
     seed = 11
-    st = Stepper(setup)
-    ctrl = pid()
-    obs = st.reset(seed, [0, 1, 2], record="none")
-    ctrl.reset(3)
-    seen = {r: [] for r in range(3)}
-
-    def log():
-        for r in range(3):
-            seen[r].append((st.bank[r], st.aileron[r], obs.bank[r], obs.age[r], obs.rate[r], obs.bank_cmd[r]))
-
-    for _ in range(restart_tick):
-        log()
-        obs = st.advance(ctrl.step(obs))
-    before = {r: list(seen[r]) for r in range(3)}
-    seen = {r: [] for r in range(3)}
-    obs = st.restart([2, 0], [9, 7])
-    ctrl.reset_rows([0, 2])
-    assert_array_equal(st.episode_step, [0, restart_tick * 2, 0])
-    ticks = 0
-    while not st.done:
-        log()
-        obs = st.advance(ctrl.step(obs))
-        ticks += 1
-        if obs is None:
-            break
+    before, seen, steps = _restart_and_log(setup, seed, restart_tick, [2, 0], [9, 7])
+    assert_array_equal(steps, [0, restart_tick * 2, 0])
     fresh7 = _local_history(setup, 7, seed, 150)
     fresh9 = _local_history(setup, 9, seed, 150)
     fresh1 = _local_history(setup, 1, seed, 150)
     assert seen[0][: len(fresh7)] == fresh7
     assert seen[2][: len(fresh9)] == fresh9
     assert before[1] + seen[1][: 150 - restart_tick] == fresh1  # row 1 went on undisturbed
-    assert st.finished.all()
 
 
 def _dispersed(setup, k: float):
@@ -205,26 +205,7 @@ def test_restart_with_a_new_setup_gives_rows_its_per_run_values(restart_tick):
     base = everything_setup(300)
     other = _dispersed(base, 1.5)
     seed = 5
-    st = Stepper(base)
-    ctrl = pid()
-    obs = st.reset(seed, [0, 1, 2], record="none")
-    ctrl.reset(3)
-    seen = {r: [] for r in range(3)}
-
-    def log():
-        for r in range(3):
-            seen[r].append((st.bank[r], st.aileron[r], obs.bank[r], obs.age[r], obs.rate[r], obs.bank_cmd[r]))
-
-    for _ in range(restart_tick):
-        log()
-        obs = st.advance(ctrl.step(obs))
-    before = {r: list(seen[r]) for r in range(3)}
-    seen = {r: [] for r in range(3)}
-    obs = st.restart([1], [8], setup=other)
-    ctrl.reset_rows([1])
-    while obs is not None:
-        log()
-        obs = st.advance(ctrl.step(obs))
+    before, seen, _ = _restart_and_log(base, seed, restart_tick, [1], [8], new_setup=other)
     fresh8 = _local_history(other, 8, seed, 150)
     assert seen[1][: len(fresh8)] == fresh8
     assert fresh8 != _local_history(base, 8, seed, 150)  # the new values did change the run
