@@ -192,6 +192,8 @@ class DelayLineKalman:
         self.P = np.broadcast_to(j @ p0x @ j.T, (batch, self.N, self.N)).copy()
         self.z = np.zeros((batch, self.N))
         self._rows = np.arange(batch)
+        self._spare: np.ndarray | None = None
+        self._tmp = np.empty((batch, self.N, self.N))
 
     @property
     def x(self) -> np.ndarray:
@@ -203,7 +205,9 @@ class DelayLineKalman:
         n, s, L = self.n, self.s, self.L
         head = n + s
         z, P = self.z, self.P
-        new = np.empty_like(P)
+        new = self._spare  # two covariance buffers, swapped each tick (no large allocation)
+        if new is None or new.shape != P.shape:
+            new = np.empty_like(P)
         pxx = P[:, :n, :n]
         pxd = P[:, :n, n : n + L - s]
         e = self.E
@@ -215,7 +219,7 @@ class DelayLineKalman:
         zn = np.empty_like(z)
         zn[:, :head] = z[:, :n] @ e.T + np.broadcast_to(u, (self.batch,))[:, None] * self.f
         zn[:, head:] = z[:, n : n + L - s]
-        self.z, self.P = zn, new
+        self.z, self.P, self._spare = zn, new, P
 
     def update(self, index: np.ndarray, y: np.ndarray, r: np.ndarray, use: np.ndarray) -> None:
         """Scalar update of state entry ``index`` (per run) with ``y``, variance ``r``, where ``use``."""
@@ -226,7 +230,8 @@ class DelayLineKalman:
         k = np.where(use, 1.0 / s, 0.0)[:, None] * col
         innov = np.where(use, y - self.z[rows, idx], 0.0)
         self.z = self.z + k * innov[:, None]
-        self.P = self.P - k[:, :, None] * col[:, None, :]
+        self._tmp = np.multiply(k[:, :, None], col[:, None, :], out=self._tmp)
+        self.P -= self._tmp  # in place: the same values as P - k·col, without two large temporaries
 
     def camera(self, y: np.ndarray, age: np.ndarray, use: np.ndarray) -> np.ndarray:
         """Apply bank readings captured ``age`` s ago where ``use``; returns which were applied."""

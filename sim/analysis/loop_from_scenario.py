@@ -45,12 +45,14 @@ gets its margins by experiment (:mod:`sim.analysis.empirical`).
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
 from rollrig.sim.errors import ScenarioError
 from rollrig.sim.scenario import Scenario
 
-from .linear_loop import LoopParts
+if TYPE_CHECKING:  # python-control (imported by linear_loop) costs about a second to import
+    from .linear_loop import LoopParts
 
 __all__ = [
     "CameraDelay",
@@ -242,6 +244,8 @@ def loop_parts_from_scenario(sc: Scenario) -> LoopParts:
         # (rounded to 1 µs: a sub-microsecond delay is noise from the averaging)
         extra = max(0.0, round(d_path - st.mean_age_s - 0.5 * st.tick_s, 6))
         filter_hz = pid.derivative_filter_hz * st.tick_s / max(st.new_reading_interval_s, st.tick_s)
+    from .linear_loop import LoopParts
+
     return LoopParts.from_plant(
         sc.plant,
         actuator_tau_s=sc.actuator.time_constant_s,
