@@ -64,7 +64,16 @@ import scipy.linalg
 from .base import Observation
 from .model import LoopModel, SignalLoss, discrete, per_run
 
-__all__ = ["LQGConfig", "DelayLineKalman", "LQGController", "tick_maps", "lqr_gain"]
+__all__ = [
+    "LQGConfig",
+    "DelayLineKalman",
+    "LQGController",
+    "tick_maps",
+    "lqr_gain",
+    "regulator_gain",
+    "steady_state",
+    "filter_matrices",
+]
 
 
 @dataclass(frozen=True, eq=False)
@@ -247,10 +256,82 @@ class DelayLineKalman:
         self.update(np.full(self.batch, self.cfg.model.p_index), rate, self.r_gyro, np.ones(self.batch, bool))
 
 
+def filter_matrices(kf: DelayLineKalman) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """The filter's one-tick model over its whole state ``z`` (state and delay line).
+
+    Returns ``(F, g, Q)``: :meth:`DelayLineKalman.predict` computes
+    ``z ← F z + g u`` and ``P ← F P Fᵀ + q·Q`` (``q`` = ``accel_psd``); the
+    head of ``z`` moves with :func:`tick_maps`, the rest of the line shifts.
+    For analysis (the stationary filter); the filter itself works by blocks.
+    """
+    n, s, L, N = kf.n, kf.s, kf.L, kf.N
+    head = n + s
+    big_f = np.zeros((N, N))
+    big_f[:head, :n] = kf.E
+    big_f[head:, n : n + L - s] = np.eye(L - s)
+    g = np.zeros(N)
+    g[:head] = kf.f
+    q = np.zeros((N, N))
+    q[:head, :head] = kf.Q1
+    return big_f, g, q
+
+
 def lqr_gain(a: np.ndarray, b: np.ndarray, q: np.ndarray, r: np.ndarray) -> np.ndarray:
     """Discrete LQR gain ``K`` (``u = −K x``) from ``scipy.linalg.solve_discrete_are``."""
     s = scipy.linalg.solve_discrete_are(a, b, q, r)
     return np.linalg.solve(r + b.T @ s @ b, b.T @ s @ a)
+
+
+def regulator_gain(
+    model: LoopModel,
+    tick_map: np.ndarray,
+    tick_input: np.ndarray,
+    dt: float,
+    bank: float,
+    rate: float,
+    aileron: float,
+    integral: float,
+) -> np.ndarray:
+    """LQR gain ``[K_x, K_i]`` (shape ``(n + 1,)``) the controller uses, for one set of Bryson limits.
+
+    Parameters
+    ----------
+    model : LoopModel
+    tick_map, tick_input : ndarray
+        :func:`tick_maps`' ``E`` and ``f`` (only their first ``n`` rows, the
+        model's state over one tick, are used).
+    dt : s
+        Controller tick.
+    bank, rate, aileron, integral : rad, rad/s, rad, rad·s
+        Largest acceptable bank error, roll rate, aileron and bank-error integral.
+    """
+    n = model.n
+    ad, bd = tick_map[:n], tick_input[:n]
+    a_i = np.zeros((n + 1, n + 1))
+    a_i[:n, :n] = ad
+    a_i[n, model.phi_index] = dt
+    a_i[n, n] = 1.0
+    b_i = np.append(bd, 0.0)[:, None]
+    q = np.eye(n + 1) * 1e-6
+    q[model.phi_index, model.phi_index] = 1.0 / bank**2
+    q[model.p_index, model.p_index] = 1.0 / rate**2
+    q[n, n] = 1.0 / integral**2
+    return lqr_gain(a_i, b_i, q, np.array([[1.0 / aileron**2]]))[0]
+
+
+def steady_state(model: LoopModel, tick_map: np.ndarray, tick_input: np.ndarray) -> tuple[np.ndarray, float]:
+    """``(x_ss, u_ss)``: the model's state and command holding unit bank (the command's feedforward)."""
+    n = model.n
+    ad, bd = tick_map[:n], tick_input[:n]
+    # steady state at unit bank: (ad - I) x + bd u = 0, x_phi = 1
+    lhs = np.zeros((n + 1, n + 1))
+    lhs[:n, :n] = ad - np.eye(n)
+    lhs[:n, n] = bd
+    lhs[n, model.phi_index] = 1.0
+    rhs = np.zeros(n + 1)
+    rhs[n] = 1.0
+    sol = np.linalg.lstsq(lhs, rhs, rcond=None)[0]
+    return sol[:n], sol[n]
 
 
 class LQGController:
@@ -270,13 +351,7 @@ class LQGController:
         self.too_old = np.zeros(batch, dtype=np.int64)
 
     def _design(self, dt: float) -> None:
-        c, m, n, b = self.cfg, self.cfg.model, self.cfg.model.n, self.batch
-        ad, bd = self.kf.E[:n], self.kf.f[:n]
-        a_i = np.zeros((n + 1, n + 1))
-        a_i[:n, :n] = ad
-        a_i[n, m.phi_index] = dt
-        a_i[n, n] = 1.0
-        b_i = np.append(bd, 0.0)[:, None]
+        c, b = self.cfg, self.batch
         limits = np.stack(
             [
                 per_run(c.max_bank_error_rad, b, "max_bank_error_rad"),
@@ -287,23 +362,9 @@ class LQGController:
             axis=1,
         )
         uniq, inverse = np.unique(limits, axis=0, return_inverse=True)
-        gains = np.empty((uniq.shape[0], n + 1))
-        for i, (bank, rate, ail, integ) in enumerate(uniq):
-            q = np.eye(n + 1) * 1e-6
-            q[m.phi_index, m.phi_index] = 1.0 / bank**2
-            q[m.p_index, m.p_index] = 1.0 / rate**2
-            q[n, n] = 1.0 / integ**2
-            gains[i] = lqr_gain(a_i, b_i, q, np.array([[1.0 / ail**2]]))[0]
+        gains = np.stack([regulator_gain(c.model, self.kf.E, self.kf.f, dt, *row) for row in uniq])
         self.K = gains[np.ravel(inverse)]
-        # steady state at unit bank: (ad - I) x + bd u = 0, x_phi = 1
-        lhs = np.zeros((n + 1, n + 1))
-        lhs[:n, :n] = ad - np.eye(n)
-        lhs[:n, n] = bd
-        lhs[n, m.phi_index] = 1.0
-        rhs = np.zeros(n + 1)
-        rhs[n] = 1.0
-        sol = np.linalg.lstsq(lhs, rhs, rcond=None)[0]
-        self.x_ss, self.u_ss = sol[:n], sol[n]
+        self.x_ss, self.u_ss = steady_state(c.model, self.kf.E, self.kf.f)
 
     def step(self, obs: Observation) -> np.ndarray:
         c, m = self.cfg, self.cfg.model

@@ -121,7 +121,7 @@ def test_cli_files_rank_and_plots(setup, capsys):
     for r in rows:  # one value per cell
         float(r["value"])
     pid_gm = [r for r in rows if r["quantity"] == "analytic_gain_margin_db"]
-    assert [r["controller"] for r in pid_gm] == ["pid (scenario)", "cascade"]  # the LQG has none
+    assert [r["controller"] for r in pid_gm] == ["pid (scenario)", "LQG", "cascade"]  # all three are linear
     manifest = json.loads((out / "manifest.json").read_text())
     assert manifest["controllers"]["LQG"]["file"] == str(p["lqg"])
 

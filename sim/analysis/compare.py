@@ -14,8 +14,8 @@ scenario's base step. Anything :func:`rollrig.sim.build.make_controller` can
 build is accepted, so new kinds need no change here.
 
 Margins: analytic ones (exact delays) where the controller's loop is linear
-and modelled here (the PID, :mod:`.linear_loop`; the cascade,
-:mod:`.compare_loops`); by experiment
+and modelled here (the PID, :mod:`.linear_loop`; the cascade, LQG and Smith
+predictor, :mod:`.compare_loops`), with a closed-loop stability check; by experiment
 (:mod:`.empirical`, gain and delay at the aileron command) for every
 controller when asked.
 """
@@ -162,15 +162,21 @@ def _with(sc: Scenario, spec: ControllerSpec) -> Scenario:
 
 def _analytic(sc: Scenario):
     """(margins, note, loop response on :data:`.compare_loops.OMEGA`) of a linear loop."""
-    from .compare_loops import OMEGA, cascade_response, frequency_margins
+    from .compare_loops import OMEGA, analytic_loop, loop_margins
     from .linear_loop import margins, open_loop_response
     from .loop_from_scenario import has_linear_model, loop_parts_from_scenario
 
     spec = sc.controller
     try:
-        if spec.kind == "cascade":
-            resp = cascade_response(sc, spec.params, spec.rate_hz)
-            return frequency_margins(resp), "", resp
+        loop = analytic_loop(sc)
+        if loop is not None:
+            if spec.kind == "smith":
+                from .compare_loops_smith import smith_margins
+
+                m = smith_margins(loop)
+            else:
+                m = loop_margins(loop)
+            return m, "", loop.response(OMEGA)
         if not has_linear_model(sc):
             return None, "no linear model here", None
         parts = loop_parts_from_scenario(sc)

@@ -114,6 +114,9 @@ def comparison_table(
             m = r.analytic
             if m is None:
                 cells += ["—", "—", "—"]
+            elif getattr(m, "closed_loop_stable", None) is False:
+                cells += [f"unstable {FAILED}", "—", "—"]
+                rec["analytic"] = {"closed_loop_stable": False}
             else:
                 cells += [
                     fmt_number(m.gain_margin_db),
@@ -124,6 +127,8 @@ def comparison_table(
                     "gain_margin_db": m.gain_margin_db,
                     "phase_margin_deg": m.phase_margin_deg,
                     "delay_margin_s": m.delay_margin_s,
+                    "closed_loop_stable": getattr(m, "closed_loop_stable", None),
+                    **getattr(m, "extra", {}),
                 }
         if has_emp:
             e = r.empirical
@@ -149,8 +154,10 @@ def comparison_table(
     if has_analytic:
         notes = {r.analytic_note for r in cmp_.results if r.analytic is None and r.analytic_note}
         t.notes.append(
-            "analytic margins: linear loop broken at the aileron command with exact delays (PID and "
-            "cascade, limits assumed not to bind; " + ("; ".join(sorted(notes)) or "—") + " for the others)."
+            "analytic margins: linear loop broken at the aileron command with exact delays (PID, cascade, "
+            "LQG with its stationary Kalman gain, Smith predictor; limits assumed not to bind; frame "
+            "sampling as a mean delay); 'unstable': the linear closed loop is unstable"
+            + (f"; {'; '.join(sorted(notes))} for the others." if notes else ".")
         )
     if has_emp:
         t.notes.append(
@@ -230,7 +237,19 @@ def tidy_rows(comparisons) -> list[dict]:
                         }
                     )
             if r.analytic is not None:
+                stable = getattr(r.analytic, "closed_loop_stable", None)
+                if stable is not None:
+                    rows.append(
+                        {
+                            **base,
+                            "quantity": "analytic_closed_loop_stable",
+                            "statistic": "value",
+                            "value": int(stable),
+                        }
+                    )
                 for q in ("gain_margin_db", "phase_margin_deg", "delay_margin_s"):
+                    if stable is False:
+                        break
                     rows.append(
                         {
                             **base,
@@ -239,6 +258,8 @@ def tidy_rows(comparisons) -> list[dict]:
                             "value": getattr(r.analytic, q),
                         }
                     )
+                for q, v in getattr(r.analytic, "extra", {}).items():
+                    rows.append({**base, "quantity": f"analytic_{q}", "statistic": "value", "value": v})
             if r.empirical is not None and r.empirical.nominal_settles:
                 rows.append(
                     {
