@@ -96,7 +96,6 @@ def test_ctrl_c_keeps_the_last_checkpoint_and_resume_finishes(cli, tmp_path, mon
         (["--randomize", "wind=1:2"], "unknown key 'wind'"),
         (["--randomize", "latency_s=x"], "KEY=LOW:HIGH"),
         (["--directions", "2", "--top", "3"], "--top 3: allowed: 1 ≤ value ≤ 2"),
-        (["--algo", "ppo", "--resume", "x.npz"], "--resume: allowed only with --algo ars"),
         (["--resume", "missing.npz"], "no such checkpoint"),
     ],
 )
