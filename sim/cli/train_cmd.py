@@ -156,7 +156,7 @@ def run(args: argparse.Namespace) -> int:
             )
         else:
             print("rollrig: interrupted before the first checkpoint; nothing was written", file=sys.stderr)
-        return 130
+        return 128 + result.signum  # as a shell reports it: 130 Ctrl-C, 143 SIGTERM
 
     from rollrig.sim.training.runs import finish
 

@@ -166,7 +166,7 @@ def train_sb3_policy(
                 row = {"iteration": n, "mean_return": float(np.mean(eps)), "cpu_s": time.process_time() - t0}
                 history_rows.append(row)
 
-    interrupted = False
+    interrupted, signum = False, 2
     try:
         if steps > model.num_timesteps:
             # counted from the checkpoint's steps, so the schedules see the same total
@@ -174,8 +174,8 @@ def train_sb3_policy(
                 total_timesteps=steps - model.num_timesteps, callback=Session(), reset_num_timesteps=False
             )
             save()
-    except KeyboardInterrupt:
-        interrupted = True
+    except KeyboardInterrupt as exc:  # Ctrl-C, or SIGTERM/SIGHUP raised as the CLI's Stopped
+        interrupted, signum = True, getattr(exc, "signum", 2)
     net = export_policy(model, algo)
     if history_rows and not interrupted:
         history_rows[-1]["pass_rate"] = pass_rate(judge_policy(sc, net, layout, eval_runs))
@@ -185,6 +185,7 @@ def train_sb3_policy(
         interrupted=interrupted,
         cpu_s=time.process_time() - t0,
         checkpoint_step=status["checkpoint_step"],
+        signum=signum,
     )
     extra["steps"] = int(model.num_timesteps)
     return result, layout, extra

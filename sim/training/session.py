@@ -37,6 +37,7 @@ class TrainResult:
     interrupted: bool = False
     cpu_s: float = 0.0
     checkpoint_step: int | None = None  # PPO/SAC: the step count the checkpoint on disk holds
+    signum: int = 2  # the signal that interrupted it (SIGINT; SIGTERM/SIGHUP come as Stopped)
 
 
 def save_checkpoint(path: Path, arrays: Mapping[str, np.ndarray], meta: Mapping) -> None:
@@ -111,7 +112,7 @@ def run_ars(
     """
     history = list(history or [])
     t0 = time.process_time()
-    interrupted = False
+    interrupted, signum = False, 2
 
     # the state after the last complete iteration (an interrupted one leaves
     # its random draws half used; resuming must repeat it whole)
@@ -135,11 +136,15 @@ def run_ars(
                 on_progress(row)
             if ars.iteration % checkpoint_every == 0:
                 save()
-    except KeyboardInterrupt:
-        interrupted = True
+    except KeyboardInterrupt as exc:
+        interrupted, signum = True, getattr(exc, "signum", 2)
         ars.load_state(done["state"])
         history = done["history"]
     save()
     return TrainResult(
-        net=ars.policy(), history=history, interrupted=interrupted, cpu_s=time.process_time() - t0
+        net=ars.policy(),
+        history=history,
+        interrupted=interrupted,
+        cpu_s=time.process_time() - t0,
+        signum=signum,
     )
