@@ -96,7 +96,6 @@ def test_ctrl_c_keeps_the_last_checkpoint_and_resume_finishes(cli, tmp_path, mon
         (["--randomize", "wind=1:2"], "unknown key 'wind'"),
         (["--randomize", "latency_s=x"], "KEY=LOW:HIGH"),
         (["--directions", "2", "--top", "3"], "--top 3: allowed: 1 ≤ value ≤ 2"),
-        (["--algo", "ppo", "--resume", "x.npz"], "--resume: allowed only with --algo ars"),
         (["--resume", "missing.npz"], "no such checkpoint"),
     ],
 )
@@ -112,3 +111,24 @@ def test_resume_with_other_settings_is_refused(cli, tmp_path):
     ckpt = tmp_path / "a.checkpoint.npz"
     code, _, err = cli(["train", scen, *SMALL, "--noise", "0.05", "--resume", ckpt, "--out", tmp_path / "b"])
     assert code == 2 and "another ars" in err
+
+
+def test_sigterm_during_training_exits_143_and_keeps_the_checkpoint(cli, tmp_path, monkeypatch):
+    """The CLI's documented exit status for SIGTERM (128 + 15), also when training catches it."""
+    import signal
+
+    from rollrig.sim.cli.main import Stopped
+    from rollrig.sim.training.ars import ARS
+
+    real_step = ARS.step
+
+    def stopped_step(self):
+        if self.iteration == 2:
+            raise Stopped(signal.SIGTERM)
+        return real_step(self)
+
+    monkeypatch.setattr(ARS, "step", stopped_step)
+    scen = short_scenario(tmp_path)
+    code, _, err = cli(["train", scen, *SMALL, "--iterations", "4", "--out", tmp_path / "t"])
+    assert code == 143 and "interrupted after iteration 2" in err
+    assert (tmp_path / "t.checkpoint.npz").exists() and not (tmp_path / "t").exists()

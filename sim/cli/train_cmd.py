@@ -59,7 +59,10 @@ def add_parser(sub) -> None:
     p.add_argument("--eval-runs", type=int, help="Monte Carlo runs used while training (default: all)")
     p.add_argument("--cpu-s", type=float, help="stop after this much CPU time (s)")
     p.add_argument(
-        "--resume", type=Path, metavar="CHECKPOINT", help="continue an ARS session from its checkpoint"
+        "--resume",
+        type=Path,
+        metavar="CHECKPOINT",
+        help="continue a session (same --algo and options) from its checkpoint",
     )
     p.add_argument(
         "--out", type=Path, metavar="DIR", help="output folder (default rollrig-runs/train-<name>-<time>)"
@@ -111,8 +114,6 @@ def _check(args) -> None:
             raise UserInputError(f"{name} {v}: allowed: a number > 0")
     if args.eval_runs is not None and args.eval_runs < 1:
         raise UserInputError(f"--eval-runs {args.eval_runs}: allowed: ≥ 1")
-    if args.resume is not None and args.algo != "ars":
-        raise UserInputError("--resume: allowed only with --algo ars")
 
 
 def run(args: argparse.Namespace) -> int:
@@ -147,9 +148,15 @@ def run(args: argparse.Namespace) -> int:
         done = result.history[-1]["iteration"] if result.history else 0
         if args.algo == "ars":
             print(f"rollrig: interrupted after iteration {done}{where}", file=sys.stderr)
+        elif meta.get("checkpoint"):
+            print(
+                f"rollrig: interrupted; checkpoint of step {result.checkpoint_step} kept at "
+                f"{meta['checkpoint']} (continue with --resume)",
+                file=sys.stderr,
+            )
         else:
-            print(f"rollrig: interrupted after {done} steps; nothing was written", file=sys.stderr)
-        return 130
+            print("rollrig: interrupted before the first checkpoint; nothing was written", file=sys.stderr)
+        return 128 + result.signum  # as a shell reports it: 130 Ctrl-C, 143 SIGTERM
 
     from rollrig.sim.training.runs import finish
 

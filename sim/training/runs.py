@@ -116,9 +116,10 @@ def train_ars(sc: Scenario, args, ranges: dict, hidden: tuple[int, ...], out_dir
 
 
 def train_sb3(sc: Scenario, args, ranges: dict, hidden: tuple[int, ...], out_dir: Path, stream):
-    """PPO or SAC through stable-baselines3 (the ``rl`` extra); the network exported to numpy."""
+    """PPO or SAC through stable-baselines3 (the ``rl`` extra); checkpoints as for ARS."""
     from .sb3 import train_sb3_policy
 
+    ckpt = Path(args.resume) if args.resume is not None else checkpoint_path(out_dir)
     result, layout, extra = train_sb3_policy(
         sc,
         args.algo,
@@ -128,10 +129,14 @@ def train_sb3(sc: Scenario, args, ranges: dict, hidden: tuple[int, ...], out_dir
         hidden=hidden or (64, 64),
         history=args.history,
         eval_runs=args.eval_runs,
+        checkpoint=ckpt,
+        resume=args.resume,
     )
     meta = policy_meta(
         sc, layout, args.algo, args.seed, dict(extra, randomize={k: list(v) for k, v in ranges.items()})
     )
+    if result.checkpoint_step is not None:
+        meta["checkpoint"] = str(ckpt)
     return result, meta
 
 

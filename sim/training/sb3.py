@@ -18,13 +18,14 @@ References: Schulman et al., "Proximal Policy Optimization Algorithms"
 from __future__ import annotations
 
 import time
+from pathlib import Path
 
 import numpy as np
 from rollrig.controllers.policy import ObservationLayout, PolicyNet
 
 from ..errors import UserInputError
 from ..scenario import Scenario
-from .session import TrainResult
+from .session import TrainResult, load_checkpoint, policy_meta, save_checkpoint
 
 __all__ = ["train_sb3_policy", "export_policy", "make_model"]
 
@@ -80,48 +81,111 @@ def train_sb3_policy(
     hidden: tuple[int, ...],
     history: int,
     eval_runs: int | None = None,
+    checkpoint: Path | None = None,
+    resume: Path | None = None,
+    checkpoint_every: int | None = None,
+    n_steps: int | None = None,
 ) -> tuple[TrainResult, ObservationLayout, dict]:
-    """Train with SB3; Ctrl-C stops early and marks the result interrupted."""
-    sb3, _ = _import()
+    """Train with SB3 up to ``steps`` environment steps, with checkpoints; Ctrl-C stops early.
+
+    Parameters
+    ----------
+    checkpoint : path, optional
+        Written (atomically) at the start of a rollout whenever
+        ``checkpoint_every`` steps have passed since the last one, and at the
+        end; an interruption leaves the last one in place
+        (:mod:`rollrig.sim.training.sb3_checkpoint`).
+    resume : path, optional
+        A checkpoint of the same algorithm, scenario, seed, network,
+        randomisation and rollrig version to continue from (up to ``steps``
+        in all); anything else is refused with one line naming the file.
+    checkpoint_every : int, optional
+        Steps between checkpoints (default: every PPO rollout; 1000 SAC steps).
+        History rows are recorded on the same rhythm (every PPO rollout).
+    n_steps : int, optional
+        PPO's rollout length (default ``min(1024, max(64, steps))``); a
+        resumed session keeps its checkpoint's.
+    """
+    sb3, torch = _import()
     from stable_baselines3.common.callbacks import BaseCallback
     from stable_baselines3.common.env_util import make_vec_env
 
     from ..envs import RollHoldEnv
     from .evaluate import judge_policy, pass_rate
+    from .sb3_checkpoint import FORMAT, EpisodeTape, capture_state, check_compatible, restore_state
 
     env = make_vec_env(
-        RollHoldEnv, n_envs=1, seed=seed, env_kwargs=dict(scenario=sc, randomize=ranges, history=history)
+        RollHoldEnv,
+        n_envs=1,
+        seed=seed,
+        env_kwargs=dict(scenario=sc, randomize=ranges, history=history),
+        wrapper_class=EpisodeTape,
     )
-    model = make_model(env, algo, hidden, seed, n_steps=min(1024, max(64, steps)))
     layout = env.get_attr("layout")[0]
+    extra = {"hidden": list(hidden), "sb3_version": sb3.__version__, "torch_version": torch.__version__}
+    meta = policy_meta(sc, layout, algo, seed, dict(extra, randomize={k: list(v) for k, v in ranges.items()}))
+    meta["format"] = FORMAT
+    n_steps = n_steps or min(1024, max(64, steps))
     history_rows: list[dict] = []
+    if resume is not None:
+        arrays, saved = load_checkpoint(resume)
+        check_compatible(resume, saved, meta)
+        try:
+            n_steps, history_rows, state = int(saved["n_steps"]), list(saved["history"]), saved["state"]
+        except (KeyError, TypeError, ValueError):
+            raise UserInputError(f"{resume}: is not a complete PPO/SAC checkpoint") from None
+    model = make_model(env, algo, hidden, seed, n_steps=n_steps)
+    if resume is not None:
+        restore_state(model, arrays, state, resume)
+    every = checkpoint_every or (n_steps if algo == "ppo" else 1000)
+    row_every = n_steps if algo == "ppo" else every
     t0 = time.process_time()
+    status = {"saved_at": model.num_timesteps, "checkpoint_step": model.num_timesteps if resume else None}
 
-    class Record(BaseCallback):
+    def save() -> None:
+        if checkpoint is None:
+            return
+        arrays, state = capture_state(model)
+        doc = dict(meta, n_steps=n_steps, history=history_rows, state=state)
+        save_checkpoint(checkpoint, arrays, doc)
+        status["saved_at"] = status["checkpoint_step"] = int(model.num_timesteps)
+
+    class Session(BaseCallback):
         def _on_step(self) -> bool:
             return True
 
-        def _on_rollout_end(self) -> None:
-            eps = [e["r"] for e in self.model.ep_info_buffer]
-            if eps:
-                history_rows.append(
-                    {
-                        "iteration": int(self.num_timesteps),
-                        "mean_return": float(np.mean(eps)),
-                        "cpu_s": time.process_time() - t0,
-                    }
-                )
+        def _on_rollout_start(self) -> None:  # a boundary: the last update is complete
+            if self.model.num_timesteps - status["saved_at"] >= every:
+                save()
 
-    interrupted = False
+        def _on_rollout_end(self) -> None:
+            n = int(self.model.num_timesteps)
+            last = history_rows[-1]["iteration"] if history_rows else 0
+            eps = [e["r"] for e in self.model.ep_info_buffer]
+            if eps and n - last >= row_every:
+                row = {"iteration": n, "mean_return": float(np.mean(eps)), "cpu_s": time.process_time() - t0}
+                history_rows.append(row)
+
+    interrupted, signum = False, 2
     try:
-        model.learn(total_timesteps=steps, callback=Record())
-    except KeyboardInterrupt:
-        interrupted = True
+        if steps > model.num_timesteps:
+            # counted from the checkpoint's steps, so the schedules see the same total
+            model.learn(
+                total_timesteps=steps - model.num_timesteps, callback=Session(), reset_num_timesteps=False
+            )
+            save()
+    except KeyboardInterrupt as exc:  # Ctrl-C, or SIGTERM/SIGHUP raised as the CLI's Stopped
+        interrupted, signum = True, getattr(exc, "signum", 2)
     net = export_policy(model, algo)
-    if history_rows:
+    if history_rows and not interrupted:
         history_rows[-1]["pass_rate"] = pass_rate(judge_policy(sc, net, layout, eval_runs))
     result = TrainResult(
-        net=net, history=history_rows, interrupted=interrupted, cpu_s=time.process_time() - t0
+        net=net,
+        history=history_rows,
+        interrupted=interrupted,
+        cpu_s=time.process_time() - t0,
+        checkpoint_step=status["checkpoint_step"],
+        signum=signum,
     )
-    extra = {"steps": int(model.num_timesteps), "hidden": list(hidden), "sb3_version": sb3.__version__}
+    extra["steps"] = int(model.num_timesteps)
     return result, layout, extra

@@ -12,6 +12,7 @@ from __future__ import annotations
 import json
 import os
 import time
+import zipfile
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -35,6 +36,8 @@ class TrainResult:
     history: list[dict] = field(default_factory=list)
     interrupted: bool = False
     cpu_s: float = 0.0
+    checkpoint_step: int | None = None  # PPO/SAC: the step count the checkpoint on disk holds
+    signum: int = 2  # the signal that interrupted it (SIGINT; SIGTERM/SIGHUP come as Stopped)
 
 
 def save_checkpoint(path: Path, arrays: Mapping[str, np.ndarray], meta: Mapping) -> None:
@@ -43,9 +46,13 @@ def save_checkpoint(path: Path, arrays: Mapping[str, np.ndarray], meta: Mapping)
     path.parent.mkdir(parents=True, exist_ok=True)
     tmp = path.with_name(f".{path.name}.tmp")
     data = dict(arrays, train_meta=np.frombuffer(json.dumps(meta).encode(), dtype=np.uint8))
-    with open(tmp, "wb") as f:
-        np.savez(f, **data)
-    os.replace(tmp, path)
+    try:
+        with open(tmp, "wb") as f:
+            np.savez(f, **data)
+        os.replace(tmp, path)
+    except BaseException:  # interrupted while writing: the previous checkpoint stays, no debris
+        tmp.unlink(missing_ok=True)
+        raise
 
 
 def load_checkpoint(path: Path) -> tuple[dict[str, np.ndarray], dict]:
@@ -56,7 +63,7 @@ def load_checkpoint(path: Path) -> tuple[dict[str, np.ndarray], dict]:
         meta = json.loads(arrays.pop("train_meta").tobytes())
     except FileNotFoundError:
         raise UserInputError(f"{path}: no such checkpoint") from None
-    except (ValueError, KeyError, OSError, EOFError) as exc:
+    except (ValueError, KeyError, OSError, EOFError, zipfile.BadZipFile) as exc:
         raise UserInputError(f"{path}: is not a rollrig training checkpoint ({exc})") from None
     return arrays, meta
 
@@ -105,7 +112,7 @@ def run_ars(
     """
     history = list(history or [])
     t0 = time.process_time()
-    interrupted = False
+    interrupted, signum = False, 2
 
     # the state after the last complete iteration (an interrupted one leaves
     # its random draws half used; resuming must repeat it whole)
@@ -129,11 +136,15 @@ def run_ars(
                 on_progress(row)
             if ars.iteration % checkpoint_every == 0:
                 save()
-    except KeyboardInterrupt:
-        interrupted = True
+    except KeyboardInterrupt as exc:
+        interrupted, signum = True, getattr(exc, "signum", 2)
         ars.load_state(done["state"])
         history = done["history"]
     save()
     return TrainResult(
-        net=ars.policy(), history=history, interrupted=interrupted, cpu_s=time.process_time() - t0
+        net=ars.policy(),
+        history=history,
+        interrupted=interrupted,
+        cpu_s=time.process_time() - t0,
+        signum=signum,
     )
