@@ -269,8 +269,10 @@ def _parse_command(s: Section | None, run: RunSpec, bank0: float, *, airspeed_mp
                 f"= {rate_deg:g} needs {math.degrees(bank):.1f}° of bank at {airspeed_mps:g} m/s; "
                 "allowed: a rate needing at most 60°",
             )
+        spec = CommandSpec((0.0, at), (start, bank), turn_rate_rad_s=_D(rate_deg))
+        _check_segments(s, spec, run, profile, bank0)
         s.finish()
-        return CommandSpec((0.0, at), (start, bank), turn_rate_rad_s=_D(rate_deg))
+        return spec
     if profile == "hold":
         spec = CommandSpec((0.0,), (_D(s.number("bank_deg", 0.0, **lim)),))
     elif profile == "step":
@@ -290,24 +292,25 @@ def _parse_command(s: Section | None, run: RunSpec, bank0: float, *, airspeed_mp
             times = np.concatenate([[0.0], times])
             banks = np.concatenate([[math.degrees(bank0)], banks])
         spec = CommandSpec(tuple(times.tolist()), tuple(np.radians(banks).tolist()))
-    _check_segments(s, spec, run, profile)
+    _check_segments(s, spec, run, profile, bank0)
     s.finish()
     return spec
 
 
-def _check_segments(s: Section, spec: CommandSpec, run: RunSpec, profile: str) -> None:
+def _check_segments(s: Section, spec: CommandSpec, run: RunSpec, profile: str, bank0: float) -> None:
     """Each command change inside the run is held for at least two base steps.
 
     The step metrics judge a change over the samples until the next change
     (or the end of the run); fewer than two samples cannot be judged, so
-    ``check`` refuses here what ``run`` could not evaluate.
+    ``check`` refuses here what ``run`` could not evaluate. A command at
+    ``t = 0`` that differs from the initial bank is a change too.
     """
     end = run.n_steps * run.base_step_s  # the last sample's time
     need = 2 * run.base_step_s
     times = spec.times_s
     for i, t0 in enumerate(times):
-        if t0 <= 0 or t0 >= end:
-            continue
+        if t0 >= end or (t0 <= 0 and abs(spec.banks_rad[0] - bank0) <= 1e-12):
+            continue  # (the same rule as the metric settings' steps: runner.metric_spec)
         t1 = min(times[i + 1], end) if i + 1 < len(times) else end
         if t1 - t0 < need - 1e-9 * max(1.0, end):
             key = "at_s" if profile == "step" else "times_s"

@@ -99,8 +99,12 @@ def test_out_refuses_a_folder_holding_the_scenario(cli, tmp_path):
             'profile = "step"\nto_deg = 10.0\nat_s = 0.5',
             'profile = "sequence"\ntimes_s = [0, 0.5, 0.505]\nbanks_deg = [0, 10, 5]',
         ),
+        (  # found by fuzzing: a command at t = 0 away from the initial bank is a change too
+            'profile = "step"\nto_deg = 10.0\nat_s = 0.5',
+            'profile = "sequence"\ntimes_s = [0, 0.00006]\nbanks_deg = [10, 20]',
+        ),
     ],
-    ids=["step-at-end", "sequence-short-segment"],
+    ids=["step-at-end", "sequence-short-segment", "sequence-short-first-change"],
 )
 def test_check_rejects_what_run_cannot_judge(cli, tmp_path, old, new):
     sc = scenario(tmp_path, replace(MINIMAL_SCENARIO, old, new))
