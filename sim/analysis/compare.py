@@ -176,7 +176,9 @@ def _analytic(sc: Scenario):
                 m = smith_margins(loop)
             else:
                 m = loop_margins(loop)
-            return m, "", loop.response(OMEGA)
+            resp = loop.response(OMEGA)
+            resp[OMEGA >= loop.nyquist_rad_s] = np.nan  # the fundamental means nothing past Nyquist
+            return m, "", resp
         if not has_linear_model(sc):
             return None, "no linear model here", None
         parts = loop_parts_from_scenario(sc)

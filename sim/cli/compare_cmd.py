@@ -49,7 +49,7 @@ def add_parser(sub) -> None:
         "--margins",
         choices=("none", "analytic", "all"),
         default="all",
-        help="analytic margins (PID) and/or margins by experiment for every controller (default: all)",
+        help="analytic margins (PID, cascade, LQG, Smith) and/or margins by experiment (default: all)",
     )
     p.add_argument("--run", type=int, default=0, metavar="K", help="run index to plot for every controller")
     p.add_argument("--runs", type=int, help="Monte Carlo runs (overrides [run] runs)")
