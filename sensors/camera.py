@@ -452,7 +452,9 @@ class CameraReader:
         self._kept[:n, cols] = True if lost is None else ~lost.T
         self._cap_step[:n, cols] = plan.capture_step.T
         self.capture_time[:n, cols] = plan.capture_step.T * self.dt
+        self.last_value = self.last_value.copy()  # new arrays: observations handed out keep theirs
         self.last_value[cols] = 0.0
+        self.last_time = self.last_time.copy()
         self.last_time[cols] = -np.inf
         self._prev_idx[rows] = -2
         if self._image is not None:
@@ -506,8 +508,9 @@ class CameraReader:
             value, valid = self._prev_value.copy(), self._prev_valid.copy()
             value[new], valid[new], _ = self._evaluate(idx[new], new)
         self._prev_idx, self._prev_value, self._prev_valid = idx, value, valid
-        self.last_value = np.where(valid, value, self.last_value)
-        self.last_time = np.where(valid, self.capture_time[idx, rows], self.last_time)
+        if n_new:  # (with the same frames, the last valid reading and its time are unchanged)
+            self.last_value = np.where(valid, value, self.last_value)
+            self.last_time = np.where(valid, self.capture_time[idx, rows], self.last_time)
         return self.last_value, valid, t - self.last_time
 
     def frame_readings(self) -> tuple[np.ndarray, np.ndarray, np.ndarray | None]:

@@ -177,6 +177,27 @@ def matmul_cols(a: np.ndarray, x: np.ndarray, out: np.ndarray | None = None) -> 
     return out
 
 
+_MEMO: dict[tuple, tuple[object, object]] = {}
+
+
+def _memo(owner, key: tuple, make):
+    """``make()`` once per ``(owner, key)``: exact discretisations repeat for every Stepper of a setup.
+
+    Keyed by the owner's identity (a plant is not hashable); the entry keeps a
+    reference to it, so the identity cannot be reused while cached. Results
+    must not be modified (they are shared).
+    """
+    k = (id(owner), *key)
+    hit = _MEMO.get(k)
+    if hit is not None and hit[0] is owner:
+        return hit[1]
+    if len(_MEMO) >= 64:
+        _MEMO.clear()
+    value = make()
+    _MEMO[k] = (owner, value)
+    return value
+
+
 def _servo_plant_matrix(plant: LinearPlant, dp, tau: float, dt: float) -> np.ndarray:
     """``(n_x + 1, n_x + 2)`` exact step of [plant; servo] from [plant; servo; held command]."""
     nx = plant.n_states
@@ -215,7 +236,7 @@ class Stepper:
 
     def __init__(self, setup: LoopSetup) -> None:
         self.setup = setup
-        self._dp = discretize(setup.plant, setup.dt)
+        self._dp = _memo(setup.plant, ("zoh", float(setup.dt)), lambda: discretize(setup.plant, setup.dt))
         self._nx = setup.plant.n_states
         names = setup.plant.state_names
         self._phi = setup.plant.phi_index
@@ -367,7 +388,11 @@ class Stepper:
             m = self._servo_cache.get(float(value))
             if m is None:
                 m = np.zeros((nrow - 1, nrow))
-                sp = _servo_plant_matrix(s.plant, self._dp, float(value), s.dt)
+                sp = _memo(
+                    s.plant,
+                    ("servo", float(s.dt), float(value)),
+                    lambda tau=float(value): _servo_plant_matrix(s.plant, self._dp, tau, s.dt),
+                )
                 m[: nx + 1, : nx + 1] = sp[:, : nx + 1]
                 m[: nx + 1, nrow - 1] = sp[:, nx + 1]
                 m[:nx, f0 : f0 + ns] = self._coupling
