@@ -74,8 +74,9 @@ def plot_metric_bars(cmp_, path: Path) -> None:
             hi.append(s.ci95_high * info.scale - m if fin else 0.0)
         ax.bar(x, means, color=[f"C{i}" for i in range(len(names))], yerr=[lo, hi], capsize=4)
         for xi, m in zip(x, means, strict=True):
-            if not np.isfinite(m):
-                ax.text(xi, 0, "∞ / diverged", rotation=90, ha="center", va="bottom", fontsize=8)
+            if not np.isfinite(m):  # means are over runs that did not diverge: some never got there
+                ax.text(xi, 0, "∞ (some runs never)", rotation=90, ha="center", va="bottom", fontsize=8)
+        ax.set_xlim(-0.6, len(names) - 0.4)  # every slot shown, with or without a bar
         ax.set_xticks(x, names, rotation=30, ha="right", fontsize=8)
         ax.set_title(f"{info.label}" + (f" ({info.unit})" if info.unit else ""), fontsize=9)
         ax.grid(alpha=0.3, axis="y")
