@@ -10,6 +10,9 @@ same numpy network as ARS policies, so evaluating it needs no torch:
 * SAC: ``actor.latent_pi`` (``tanh`` layers, set at construction so the
   export is exact) then ``actor.mu``, squashed by ``tanh``.
 
+Sessions are checkpointed and resumed bit for bit without pickle
+(:mod:`rollrig.sim.training.sb3_checkpoint`).
+
 References: Schulman et al., "Proximal Policy Optimization Algorithms"
 (2017); Haarnoja et al., "Soft Actor-Critic" (ICML 2018); Raffin et al.,
 "Stable-Baselines3: Reliable Reinforcement Learning Implementations" (JMLR 2021).
@@ -147,7 +150,10 @@ def train_sb3_policy(
     t0 = time.process_time()
     status = {
         "saved_at": model.num_timesteps,
-        "checkpoint_step": model.num_timesteps if resume else None,
+        # the checkpoint on disk is the one resumed when the session writes back to it (the CLI's rule)
+        "checkpoint_step": model.num_timesteps
+        if resume and checkpoint and Path(resume) == Path(checkpoint)
+        else None,
         "out_of_time": False,
     }
 
