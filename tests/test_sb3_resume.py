@@ -133,6 +133,7 @@ def _rewrite(src, dst, drop=(), add=None, meta_changes=None):
         ("pickle", "ppo", {}, "is not a rollrig training checkpoint"),
         ("truncated", "ppo", {}, "is not a rollrig training checkpoint"),
         ("ars", "ppo", {}, "another algorithm ('ars', not 'ppo')"),
+        ("scenario", "ppo", {}, "another scenario"),
     ],
 )
 def test_unusable_checkpoint_is_refused_naming_the_file(
@@ -160,6 +161,8 @@ def test_unusable_checkpoint_is_refused_naming_the_file(
         _rewrite(ppo_checkpoint, bad, meta_changes={"algorithm": "ars"})
     else:
         bad = ppo_checkpoint
+    if case == "scenario":  # the same file with 3 Monte Carlo runs instead of 2
+        scenario = load_scenario(short_training_scenario(tmp_path, runs=3))
     with pytest.raises(UserInputError) as err:
         _train(scenario, algo, 256, tmp_path / "new.npz", resume=bad, **kw)
     text = str(err.value)
