@@ -63,16 +63,20 @@ def scenario(tmp_path_factory):
     return load_scenario(short_training_scenario(tmp_path_factory.mktemp("sc"), runs=2))
 
 
-def test_ppo_resumed_in_a_new_model_is_bit_identical(scenario, tmp_path):
-    # 512 steps in rollouts of 256; the split at 256 is 56 ticks into a 100-tick episode
-    r_straight, _, straight = _train(scenario, "ppo", 512, tmp_path / "straight.npz", n_steps=256)
-    r_half, _, _ = _train(scenario, "ppo", 256, tmp_path / "half.npz", n_steps=256)
+@pytest.mark.parametrize("steps, n_steps", [(256, 128), (128, 64)])
+def test_ppo_resumed_in_a_new_model_is_bit_identical(scenario, tmp_path, steps, n_steps):
+    """Split mid-episode (episodes are 100 ticks): at 128 the episode began by the generator's
+    state; at 64 it is the first one, begun by the seed."""
+    half_steps = steps // 2
+    r_straight, _, straight = _train(scenario, "ppo", steps, tmp_path / "straight.npz", n_steps=n_steps)
+    r_half, _, _ = _train(scenario, "ppo", half_steps, tmp_path / "half.npz", n_steps=n_steps)
     half, meta = load_checkpoint(tmp_path / "half.npz")
-    assert r_half.checkpoint_step == 256 and meta["state"]["counters"]["num_timesteps"] == 256
-    assert len(half["tape/actions"]) == 56  # mid-episode: the environment is replayed
+    assert r_half.checkpoint_step == half_steps == meta["state"]["counters"]["num_timesteps"]
+    assert len(half["tape/actions"]) == half_steps % 100  # mid-episode: the environment is replayed
+    assert (meta["state"]["tape"]["seed"] is not None) == (half_steps < 100)
     shutil.copy(tmp_path / "half.npz", tmp_path / "other-shuffle.npz")
-    r, _, resumed = _train(scenario, "ppo", 512, tmp_path / "half.npz", resume=tmp_path / "half.npz")
-    assert resumed["steps"] == straight["steps"] == 512
+    r, _, resumed = _train(scenario, "ppo", steps, tmp_path / "half.npz", resume=tmp_path / "half.npz")
+    assert resumed["steps"] == straight["steps"] == steps
     _assert_same_session(tmp_path / "straight.npz", tmp_path / "half.npz")
     for wa, wb in zip(
         r_straight.net.weights + r_straight.net.biases, r.net.weights + r.net.biases, strict=True
@@ -82,7 +86,7 @@ def test_ppo_resumed_in_a_new_model_is_bit_identical(scenario, tmp_path):
     # state (it shuffles PPO's minibatches) ends elsewhere
     keys = np.random.RandomState(99).get_state()[1]
     _rewrite(tmp_path / "other-shuffle.npz", tmp_path / "other-shuffle.npz", add={"rng/numpy_keys": keys})
-    _train(scenario, "ppo", 512, tmp_path / "other-shuffle.npz", resume=tmp_path / "other-shuffle.npz")
+    _train(scenario, "ppo", steps, tmp_path / "other-shuffle.npz", resume=tmp_path / "other-shuffle.npz")
     with pytest.raises(AssertionError):
         _assert_same_session(tmp_path / "straight.npz", tmp_path / "other-shuffle.npz")
 
@@ -129,6 +133,7 @@ def _rewrite(src, dst, drop=(), add=None, meta_changes=None):
         ("pickle", "ppo", {}, "is not a rollrig training checkpoint"),
         ("truncated", "ppo", {}, "is not a rollrig training checkpoint"),
         ("ars", "ppo", {}, "another algorithm ('ars', not 'ppo')"),
+        ("scenario", "ppo", {}, "another scenario"),
     ],
 )
 def test_unusable_checkpoint_is_refused_naming_the_file(
@@ -156,6 +161,8 @@ def test_unusable_checkpoint_is_refused_naming_the_file(
         _rewrite(ppo_checkpoint, bad, meta_changes={"algorithm": "ars"})
     else:
         bad = ppo_checkpoint
+    if case == "scenario":  # the same file with 3 Monte Carlo runs instead of 2
+        scenario = load_scenario(short_training_scenario(tmp_path, runs=3))
     with pytest.raises(UserInputError) as err:
         _train(scenario, algo, 256, tmp_path / "new.npz", resume=bad, **kw)
     text = str(err.value)
@@ -202,3 +209,13 @@ def test_interrupted_cli_run_keeps_its_checkpoint_and_resume_finishes(cli, tmp_p
     net, _, pmeta = load_policy(out / "policy.npz")
     assert pmeta["steps"] == 2048 and pmeta["algorithm"] == "ppo"
     assert load_checkpoint(ckpt)[1]["state"]["counters"]["num_timesteps"] == 2048
+
+
+def test_cpu_budget_stops_at_a_rollout_start_with_a_checkpoint_that_resumes(scenario, tmp_path):
+    ckpt = tmp_path / "budget.npz"
+    r, _, extra = _train(scenario, "ppo", 4096, ckpt, n_steps=64, cpu_budget_s=0.3)
+    assert not r.interrupted and 0 < extra["steps"] < 4096 and extra["steps"] % 64 == 0
+    _, meta = load_checkpoint(ckpt)
+    assert meta["state"]["counters"]["num_timesteps"] == extra["steps"] == r.checkpoint_step
+    r2, _, extra2 = _train(scenario, "ppo", extra["steps"] + 64, ckpt, resume=ckpt)
+    assert extra2["steps"] == extra["steps"] + 64 and r2.history[-1]["iteration"] == extra2["steps"]

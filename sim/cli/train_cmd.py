@@ -57,7 +57,11 @@ def add_parser(sub) -> None:
         "--eval-every", type=int, default=5, help="judge the policy every N iterations (default 5)"
     )
     p.add_argument("--eval-runs", type=int, help="Monte Carlo runs used while training (default: all)")
-    p.add_argument("--cpu-s", type=float, help="stop after this much CPU time (s)")
+    p.add_argument(
+        "--cpu-s",
+        type=float,
+        help="stop after this much CPU time (s), at the next iteration or rollout start",
+    )
     p.add_argument(
         "--resume",
         type=Path,

@@ -131,6 +131,7 @@ def train_sb3(sc: Scenario, args, ranges: dict, hidden: tuple[int, ...], out_dir
         eval_runs=args.eval_runs,
         checkpoint=ckpt,
         resume=args.resume,
+        cpu_budget_s=args.cpu_s,
     )
     meta = policy_meta(
         sc, layout, args.algo, args.seed, dict(extra, randomize={k: list(v) for k, v in ranges.items()})

@@ -10,6 +10,9 @@ same numpy network as ARS policies, so evaluating it needs no torch:
 * SAC: ``actor.latent_pi`` (``tanh`` layers, set at construction so the
   export is exact) then ``actor.mu``, squashed by ``tanh``.
 
+Sessions are checkpointed and resumed bit for bit without pickle
+(:mod:`rollrig.sim.training.sb3_checkpoint`).
+
 References: Schulman et al., "Proximal Policy Optimization Algorithms"
 (2017); Haarnoja et al., "Soft Actor-Critic" (ICML 2018); Raffin et al.,
 "Stable-Baselines3: Reliable Reinforcement Learning Implementations" (JMLR 2021).
@@ -85,6 +88,7 @@ def train_sb3_policy(
     resume: Path | None = None,
     checkpoint_every: int | None = None,
     n_steps: int | None = None,
+    cpu_budget_s: float | None = None,
 ) -> tuple[TrainResult, ObservationLayout, dict]:
     """Train with SB3 up to ``steps`` environment steps, with checkpoints; Ctrl-C stops early.
 
@@ -105,6 +109,10 @@ def train_sb3_policy(
     n_steps : int, optional
         PPO's rollout length (default ``min(1024, max(64, steps))``); a
         resumed session keeps its checkpoint's.
+    cpu_budget_s : float, optional
+        Stop at the first rollout start after this much CPU time (s), with a
+        checkpoint there; the result is complete (not interrupted) and
+        ``--resume`` can continue it.
     """
     sb3, torch = _import()
     from stable_baselines3.common.callbacks import BaseCallback
@@ -140,7 +148,14 @@ def train_sb3_policy(
     every = checkpoint_every or (n_steps if algo == "ppo" else 1000)
     row_every = n_steps if algo == "ppo" else every
     t0 = time.process_time()
-    status = {"saved_at": model.num_timesteps, "checkpoint_step": model.num_timesteps if resume else None}
+    status = {
+        "saved_at": model.num_timesteps,
+        # the checkpoint on disk is the one resumed when the session writes back to it (the CLI's rule)
+        "checkpoint_step": model.num_timesteps
+        if resume and checkpoint and Path(resume) == Path(checkpoint)
+        else None,
+        "out_of_time": False,
+    }
 
     def save() -> None:
         if checkpoint is None:
@@ -152,10 +167,13 @@ def train_sb3_policy(
 
     class Session(BaseCallback):
         def _on_step(self) -> bool:
-            return True
+            return not status["out_of_time"]  # False ends learn() before anything is learned
 
         def _on_rollout_start(self) -> None:  # a boundary: the last update is complete
-            if self.model.num_timesteps - status["saved_at"] >= every:
+            if cpu_budget_s is not None and time.process_time() - t0 >= cpu_budget_s:
+                save()
+                status["out_of_time"], status["stopped_at"] = True, int(self.model.num_timesteps)
+            elif self.model.num_timesteps - status["saved_at"] >= every:
                 save()
 
         def _on_rollout_end(self) -> None:
@@ -173,7 +191,8 @@ def train_sb3_policy(
             model.learn(
                 total_timesteps=steps - model.num_timesteps, callback=Session(), reset_num_timesteps=False
             )
-            save()
+            if not status["out_of_time"]:  # (out of time: one step past the checkpoint, not saved)
+                save()
     except KeyboardInterrupt as exc:  # Ctrl-C, or SIGTERM/SIGHUP raised as the CLI's Stopped
         interrupted, signum = True, getattr(exc, "signum", 2)
     net = export_policy(model, algo)
@@ -187,5 +206,5 @@ def train_sb3_policy(
         checkpoint_step=status["checkpoint_step"],
         signum=signum,
     )
-    extra["steps"] = int(model.num_timesteps)
+    extra["steps"] = int(status["stopped_at"] if status["out_of_time"] else model.num_timesteps)
     return result, layout, extra
