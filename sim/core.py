@@ -308,8 +308,10 @@ class Stepper:
         self._servo_cache: dict[float, np.ndarray] = {}
         self._set_actuator(act)
         # the plant step redone for runs whose servo limit binds: [plant; filters] -> plant
-        self._redo_idx = np.r_[np.arange(nx), np.arange(f0, f0 + ns)].astype(np.int64)
-        self._redo = np.ascontiguousarray(np.hstack([self._dp.ad, coupling]))
+        # (zero columns for the servo and the held command, so it multiplies the state as it is)
+        self._redo = np.zeros((nx, nrow))
+        self._redo[:, :nx] = self._dp.ad
+        self._redo[:, f0 : f0 + ns] = coupling
         self._b_ail = self._dp.bd_control[:, 0].copy()
         # disturbance inputs added per step: rows [w_lo, w_hi) of the state
         has_sig = bool(self._signals)
@@ -323,6 +325,7 @@ class Stepper:
         width = max(batch, 2)
         self._Sfull = np.zeros((every + 1, nrow, width))
         self._S = self._Sfull[:, :, :batch]
+        self._views: dict[int | None, np.ndarray] = {}
 
         # ---- clocks
         self.k = 0  # base steps advanced (global)
@@ -514,11 +517,12 @@ class Stepper:
 
     # ================================================================ views
     def _view(self, row: int | None) -> np.ndarray:
-        if row is None:
-            v = np.zeros(self.batch)
-        else:
-            v = self._S[0, row].view()
-        v.flags.writeable = False
+        """Read-only view of one state row at the current step (made once per batch: it follows the state)."""
+        v = self._views.get(row)
+        if v is None:
+            v = np.zeros(self.batch) if row is None else self._S[0, row].view()
+            v.flags.writeable = False
+            self._views[row] = v
         return v
 
     @property
@@ -629,7 +633,8 @@ class Stepper:
             else:
                 moving = left = np.minimum(np.maximum(n - kl, 0), every)  # steps each run still moves
         tick = kl // every
-        self._record_tick(tick, u)
+        if self.rec_cmd is not None:
+            self._record_tick(tick, u)
 
         S, lim, mc = self._S, self._lim, self._max_change
         perturbed = self._gain is not None or self._delay_steps is not None
@@ -653,7 +658,7 @@ class Stepper:
                 for m, rows in self._groups:
                     Y[:-1, rows] = matmul_cols(m, X[:, rows])
             if near.size:
-                self._limit_servo(X, Y, near)
+                self._limit_servo(X, Y, near, self._Sfull[j])
             if w_hi:
                 Y[w_lo:w_hi] += self._block_row(self.k + j)
             if frozen or moving is not None:
@@ -734,16 +739,22 @@ class Stepper:
             cmd = cmd * self._gain
         return cmd
 
-    def _limit_servo(self, X: np.ndarray, Y: np.ndarray, rows: np.ndarray) -> None:
+    def _limit_servo(
+        self, X: np.ndarray, Y: np.ndarray, rows: np.ndarray, X_padded: np.ndarray | None = None
+    ) -> None:
         """Clip the servo of ``rows`` where a limit binds; redo those runs' plant step.
 
         A limit binds when the free step moves the servo by more than the
         rate limit allows or ends beyond the position limit; both are decided
         with the limits themselves (never by comparing a clipped value with
-        the free one, which last-bit rounding would flip).
+        the free one, which last-bit rounding would flip). ``X_padded`` is
+        ``X`` in the state buffer that pads a lone run to two columns (see
+        :func:`matmul_cols`): when every run binds, the redone product reads
+        it directly instead of doubling the column.
         """
         nx = self._nx
-        if rows.size == X.shape[1]:  # every run: slices, no gathers
+        every_run = rows.size == X.shape[1]
+        if every_run:  # slices, no gathers
             lim, mc, before, free = self._lim, self._max_change, X[nx], Y[nx]
         else:
             lim, mc, before, free = self._lim[rows], self._max_change[rows], X[nx, rows], Y[nx, rows]
@@ -754,17 +765,18 @@ class Stepper:
         if hits < bind.size:
             r = rows[bind]
             before, free, lim, mc = before[bind], free[bind], lim[bind], mc[bind]
-            x = X[self._redo_idx[:, None], r]
-        elif rows.size == X.shape[1]:
-            r = slice(None)
-            x = X[self._redo_idx]
         else:
-            r = rows
-            x = X[self._redo_idx[:, None], r]
+            r = slice(None) if every_run else rows
         change = np.minimum(np.maximum(free - before, -mc), mc)
         clipped = np.minimum(np.maximum(before + change, -lim), lim)
         mean = 0.5 * (before + clipped)  # straight-line servo motion
-        Y[:nx, r] = matmul_cols(self._redo, x) + self._b_ail[:, None] * mean
+        if not isinstance(r, slice):  # some runs: gather their columns
+            plant = matmul_cols(self._redo, X[:, r])
+        elif X_padded is not None:  # every run: the padded buffer (the same BLAS kernel, no copy)
+            plant = np.matmul(self._redo, X_padded)[:, : X.shape[1]]
+        else:
+            plant = matmul_cols(self._redo, X)
+        Y[:nx, r] = plant + self._b_ail[:, None] * mean
         Y[nx, r] = clipped
 
     def _block_row(self, k: int) -> np.ndarray:
