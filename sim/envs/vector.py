@@ -101,6 +101,7 @@ class RollHoldVectorEnv(gym.vector.VectorEnv):
         )
         self._run_index = options.get("run_index")
         self._draws = [draw_episode(self._rngs[i], self._ranges, self._run_index) for i in range(n)]
+        self._cmd_scale = self._column("command_scale")
         self._stepper = Stepper(self._setup())
         obs = self._stepper.reset(self.scenario.run.seed, [d.run_index for d in self._draws], record="none")
         self._builder.reset(n)
@@ -131,6 +132,7 @@ class RollHoldVectorEnv(gym.vector.VectorEnv):
             rows = ended.nonzero()[0]
             for i in rows:
                 self._draws[i] = draw_episode(self._rngs[i], self._ranges, self._run_index)
+            self._cmd_scale = self._column("command_scale")
             nxt = st.restart(rows, [self._draws[i].run_index for i in rows], setup=self._setup())
             self._builder.restart(rows)
             self._prev[rows] = 0.0
@@ -148,33 +150,33 @@ class RollHoldVectorEnv(gym.vector.VectorEnv):
         return self._builder(nxt, self._prev), reward, term, trunc, {}
 
     # ------------------------------------------------------------- helpers
+    def _column(self, key: str) -> np.ndarray | None:
+        """Every member's current draw of ``key`` (``None``: not randomised)."""
+        if getattr(self._draws[0], key) is None:
+            return None
+        return np.array([getattr(d, key) for d in self._draws])
+
     def _setup(self):
         """The core's setup with every member's current draws as per-run values."""
-        base, d0, draws = self.base, self._draws[0], self._draws
-
-        def col(key: str) -> np.ndarray:
-            return np.array([getattr(d, key) for d in draws])
-
+        base, col = self.base, self._column
         changes = {}
-        if d0.initial_bank_deg is not None:
-            x0 = np.tile(np.asarray(base.x0, dtype=float), (len(draws), 1))
-            x0[:, self.scenario.plant.phi_index] = np.radians(col("initial_bank_deg"))
+        if (bank0 := col("initial_bank_deg")) is not None:
+            x0 = np.tile(np.asarray(base.x0, dtype=float), (len(self._draws), 1))
+            x0[:, self.scenario.plant.phi_index] = np.radians(bank0)
             changes["x0"] = x0
-        if d0.command_scale is not None:
-            changes["bank_cmd"] = np.asarray(base.bank_cmd)[None, :] * col("command_scale")[:, None]
+        if (scale := col("command_scale")) is not None:
+            changes["bank_cmd"] = np.asarray(base.bank_cmd)[None, :] * scale[:, None]
         cam = {}
-        if d0.noise_deg is not None:
-            cam["noise_rad"] = np.radians(col("noise_deg"))
-        if d0.latency_s is not None:
-            cam["latency_s"] = col("latency_s")
-        if d0.dropout_prob is not None:
-            cam["dropout_prob"] = col("dropout_prob")
+        if (noise := col("noise_deg")) is not None:
+            cam["noise_rad"] = np.radians(noise)
+        if (latency := col("latency_s")) is not None:
+            cam["latency_s"] = latency
+        if (dropout := col("dropout_prob")) is not None:
+            cam["dropout_prob"] = dropout
         if cam:
             changes["camera"] = replace(base.camera, **cam)
-        if d0.turbulence_scale is not None:
-            scale = col("turbulence_scale")
-            changes["disturbances"] = tuple(scale_disturbance(s, scale) for s in base.disturbances)
-        self._cmd_scale = None if d0.command_scale is None else col("command_scale")
+        if (turbulence := col("turbulence_scale")) is not None:
+            changes["disturbances"] = tuple(scale_disturbance(s, turbulence) for s in base.disturbances)
         return replace(base, **changes) if changes else base
 
     def _command_at(self, k: np.ndarray) -> np.ndarray:
