@@ -51,7 +51,7 @@ false and the margins are ``nan``.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
@@ -312,14 +312,7 @@ def loop_margins(loop: ControllerLoop, omega: np.ndarray = OMEGA) -> FrequencyMa
     if not loop.stable():
         return FrequencyMargins(nan, nan, nan, nan, closed_loop_stable=False)
     w = omega[omega < loop.nyquist_rad_s]
-    m = frequency_margins(loop.response(w), w)
-    return FrequencyMargins(
-        m.gain_margin_db,
-        m.phase_margin_deg,
-        m.gain_crossover_rad_s,
-        m.delay_margin_s,
-        closed_loop_stable=True,
-    )
+    return replace(frequency_margins(loop.response(w), w), closed_loop_stable=True)
 
 
 # ---------------------------------------------------------------------- cascade

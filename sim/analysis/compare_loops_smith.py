@@ -43,6 +43,7 @@ frame sampling is the camera's mean delay; limits do not bind.
 from __future__ import annotations
 
 import math
+from dataclasses import replace
 
 import numpy as np
 
@@ -178,11 +179,4 @@ def smith_margins(loop: ControllerLoop, omega: np.ndarray = OMEGA) -> FrequencyM
         "predictor_delay_margin_s": p.delay_margin_s,
         "plant_delay_margin_s": plant_dm,
     }
-    return FrequencyMargins(
-        m.gain_margin_db,
-        m.phase_margin_deg,
-        m.gain_crossover_rad_s,
-        m.delay_margin_s,
-        closed_loop_stable=True,
-        extra=extra,
-    )
+    return replace(m, extra=extra)
