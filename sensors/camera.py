@@ -468,11 +468,11 @@ class CameraReader:
     def _evaluate(self, frames, rows):
         """Reading, validity and confidence of frames, from the bank record."""
         w = self._weights
-        # frame-major (n + 1, batch) arrays gathered by flat index (frame -1 wraps to the spare row)
+        # frame-major (n + 1, batch) arrays, gathered through flat views (frame -1 wraps to the spare row)
         flat = frames * self.batch + rows
-        cap = np.take(self._cap_step, flat)
+        cap = self._cap_step.reshape(-1)[flat]
         if w.shape[0] == 1:
-            bank = np.take(self.history, cap * self.batch + rows)
+            bank = self.history[cap, rows]
         else:  # one gather per base step of the exposure (few), newest first
             wr = self._w_shared
             if wr is None:  # exposure per run: each run's own weights
@@ -482,8 +482,8 @@ class CameraReader:
                 bank += wr[-1 - i] * self.history[np.maximum(cap - i, 0), rows]
         if self._image is not None:  # the reader's reading of the rendered picture replaces the bank
             bank, seen = self._image.read(bank, frames, rows)
-        value, ok, conf = read_frames(bank, self.cfg, np.take(self._offset, flat), self._centres, rows)
-        ok &= np.take(self._kept, flat)
+        value, ok, conf = read_frames(bank, self.cfg, self._offset.reshape(-1)[flat], self._centres, rows)
+        ok &= self._kept.reshape(-1)[flat]
         if self._image is not None:
             ok &= seen
         return value, ok, conf
