@@ -132,3 +132,21 @@ def test_sigterm_during_training_exits_143_and_keeps_the_checkpoint(cli, tmp_pat
     code, _, err = cli(["train", scen, *SMALL, "--iterations", "4", "--out", tmp_path / "t"])
     assert code == 143 and "interrupted after iteration 2" in err
     assert (tmp_path / "t.checkpoint.npz").exists() and not (tmp_path / "t").exists()
+
+
+def test_sigterm_while_writing_the_results_names_the_kept_checkpoint(cli, tmp_path, monkeypatch):
+    """A signal after training (while judging and writing the folder) still says where the checkpoint is."""
+    import signal
+
+    import rollrig.sim.training.runs as runs
+    from rollrig.sim.cli.main import Stopped
+
+    def stopped_finish(*args, **kwargs):
+        raise Stopped(signal.SIGTERM)
+
+    monkeypatch.setattr(runs, "finish", stopped_finish)
+    scen = short_scenario(tmp_path)
+    code, _, err = cli(["train", scen, *SMALL, "--iterations", "2", "--out", tmp_path / "t"])
+    ckpt = tmp_path / "t.checkpoint.npz"
+    assert code == 143 and f"checkpoint kept at {ckpt}" in err and "no output folder" in err
+    assert ckpt.exists() and not (tmp_path / "t").exists()

@@ -138,10 +138,10 @@ def main(argv: list[str] | None = None) -> int:
         return 2
     except Stopped as exc:
         name = signal.Signals(exc.signum).name
-        print(f"rollrig: stopped by {name}; nothing was written", file=sys.stderr)
+        print(f"rollrig: stopped by {name}; no output was written", file=sys.stderr)
         return 128 + exc.signum
     except KeyboardInterrupt:
-        print("rollrig: interrupted; nothing was written", file=sys.stderr)
+        print("rollrig: interrupted; no output was written", file=sys.stderr)
         return 130
     finally:
         for sig, handler in old_handlers.items():

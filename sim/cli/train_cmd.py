@@ -121,11 +121,31 @@ def _check(args) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
+    try:
+        return _train(args)
+    except KeyboardInterrupt as exc:  # a signal outside the training loop (start-up or wrap-up)
+        import signal
+        import sys
+
+        ckpt = getattr(args, "checkpoint_file", None)
+        if ckpt is None or not ckpt.exists():
+            raise
+        signum = getattr(exc, "signum", signal.SIGINT)
+        print(
+            f"rollrig: stopped by {signal.Signals(signum).name}; no output folder was written; "
+            f"checkpoint kept at {ckpt} (continue with --resume)",
+            file=sys.stderr,
+        )
+        return 128 + signum
+
+
+def _train(args: argparse.Namespace) -> int:
     import sys
 
     from rollrig.sim.envs.episode import check_ranges
     from rollrig.sim.report.outdir import check_out_dir, default_out_dir
     from rollrig.sim.scenario import load_scenario
+    from rollrig.sim.training.runs import checkpoint_path
 
     _check(args)
     sc = load_scenario(args.scenario)
@@ -133,6 +153,7 @@ def run(args: argparse.Namespace) -> int:
     hidden = _hidden(args.hidden)
     out_dir = args.out or default_out_dir(f"train-{Path(sc.path).stem}")
     check_out_dir(out_dir, args.force)
+    args.checkpoint_file = Path(args.resume) if args.resume is not None else checkpoint_path(out_dir)
     stream = status_stream(args.format)
 
     if args.algo == "ars":
