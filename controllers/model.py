@@ -49,19 +49,32 @@ class LoopModel:
 
 
 def per_run(value, batch: int, name: str) -> np.ndarray:
-    """A parameter as a ``(batch,)`` float array (scalar or per-run values).
+    """``value`` as a contiguous ``(batch,)`` float array (a fresh copy).
+
+    The one check of the per-run rule (see :mod:`rollrig.sim.params`, which
+    re-exports it): a scalar for every run, or one value per run.
+
+    Parameters
+    ----------
+    value : float or array_like of shape ``(batch,)``
+    batch : int
+        Runs in the batch.
+    name : str
+        The parameter's name, for the error message.
 
     Raises
     ------
     ValueError
-        When an array has another length than the batch.
+        When ``value`` is neither a scalar nor one value per run.
     """
-    arr = np.asarray(value, dtype=float)
-    if arr.ndim == 0:
-        return np.full(batch, float(arr))
-    if arr.shape != (batch,):
-        raise ValueError(f"{name}: per-run values have shape {arr.shape}; expected ({batch},) or a scalar")
-    return arr.copy()
+    a = np.asarray(value, dtype=float)
+    if a.ndim == 0:
+        return np.full(batch, float(a))
+    if a.shape != (batch,):
+        raise ValueError(
+            f"{name}: allowed: a number or one value per run, shape ({batch},); got shape {a.shape}"
+        )
+    return np.array(a, dtype=float, order="C")
 
 
 def discrete(model: LoopModel, dt: float) -> tuple[np.ndarray, np.ndarray]:

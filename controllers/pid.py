@@ -27,8 +27,9 @@ from dataclasses import dataclass
 import numpy as np
 
 from .base import Observation
+from .model import per_run
 
-__all__ = ["PIDConfig", "PIDController"]
+__all__ = ["PIDConfig", "PIDController", "PER_RUN_FIELDS"]
 
 
 @dataclass(frozen=True)
@@ -71,7 +72,8 @@ class PIDConfig:
     fade_s: float = 1.0
 
 
-_PER_RUN = (
+#: Fields that may hold one value per run (listed with the others in :mod:`rollrig.sim.params`).
+PER_RUN_FIELDS = (
     "kp",
     "ki_per_s",
     "kd_s",
@@ -103,9 +105,8 @@ class PIDController:
         c = self.cfg
         self.batch = batch
         self.p = {}
-        for name in _PER_RUN:
-            v = np.asarray(getattr(c, name), dtype=float)
-            self.p[name] = np.full(batch, float(v)) if v.ndim == 0 else np.array(np.broadcast_to(v, (batch,)))
+        for name in PER_RUN_FIELDS:
+            self.p[name] = per_run(getattr(c, name), batch, name)
         self._alpha_dt = None
         self._use_gyro = c.derivative_source == "gyro"
         self.integral = np.zeros(batch)

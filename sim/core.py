@@ -305,7 +305,6 @@ class Stepper:
             filt[i : i + f.n_states, i : i + f.n_states] = f.phi
             i += f.n_states
         self._coupling, self._filt = coupling, filt
-        self._servo_cache: dict[float, np.ndarray] = {}
         self._set_actuator(act)
         # the plant step redone for runs whose servo limit binds: [plant; filters] -> plant
         # (zero columns for the servo and the held command, so it multiplies the state as it is)
@@ -388,19 +387,16 @@ class Stepper:
             self._alpha = np.where(tau > 0, -np.expm1(-s.dt / np.where(tau > 0, tau, 1.0)), 1.0)
         self._groups = []
         for value in np.unique(tau):
-            m = self._servo_cache.get(float(value))
-            if m is None:
-                m = np.zeros((nrow - 1, nrow))
-                sp = _memo(
-                    s.plant,
-                    ("servo", float(s.dt), float(value)),
-                    lambda tau=float(value): _servo_plant_matrix(s.plant, self._dp, tau, s.dt),
-                )
-                m[: nx + 1, : nx + 1] = sp[:, : nx + 1]
-                m[: nx + 1, nrow - 1] = sp[:, nx + 1]
-                m[:nx, f0 : f0 + ns] = self._coupling
-                m[f0 : f0 + ns, f0 : f0 + ns] = self._filt
-                m = self._servo_cache[float(value)] = np.ascontiguousarray(m)
+            sp = _memo(  # the matrix exponential, once per plant, step and time constant
+                s.plant,
+                ("servo", float(s.dt), float(value)),
+                lambda tau=float(value): _servo_plant_matrix(s.plant, self._dp, tau, s.dt),
+            )
+            m = np.zeros((nrow - 1, nrow))
+            m[: nx + 1, : nx + 1] = sp[:, : nx + 1]
+            m[: nx + 1, nrow - 1] = sp[:, nx + 1]
+            m[:nx, f0 : f0 + ns] = self._coupling
+            m[f0 : f0 + ns, f0 : f0 + ns] = self._filt
             rows = np.flatnonzero(tau == value)
             self._groups.append((m, None if rows.size == self.batch else rows))
 

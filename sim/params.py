@@ -60,6 +60,8 @@ from __future__ import annotations
 import dataclasses
 
 import numpy as np
+from rollrig.controllers.model import per_run  # the one check (controllers are leaves)
+from rollrig.controllers.pid import PER_RUN_FIELDS as _PID_PER_RUN
 
 __all__ = ["PER_RUN", "per_run", "per_run_rows", "resolve", "take", "put", "batch_size_of", "any_positive"]
 
@@ -84,17 +86,7 @@ PER_RUN: dict[str, tuple[str, ...]] = {
     ),
     "BurstConfig": ("loss_rate", "mean_burst_frames"),
     "GyroConfig": ("noise_rad_s", "bias_rad_s", "bias_drift_rad_s", "bias_drift_time_s"),
-    "PIDConfig": (
-        "kp",
-        "ki_per_s",
-        "kd_s",
-        "derivative_filter_hz",
-        "output_limit_rad",
-        "integrator_limit_rad",
-        "stale_after_s",
-        "hold_s",
-        "fade_s",
-    ),
+    "PIDConfig": _PID_PER_RUN,
     "SteadyRollMoment": ("accel_rad_s2", "step_accel_rad_s2", "step_time_s"),
     "OneMinusCosineGust": ("amplitude", "onset_s"),
     "DrydenParams": ("sigma_v_mps", "sigma_w_mps"),
@@ -102,32 +94,6 @@ PER_RUN: dict[str, tuple[str, ...]] = {
 
 #: Nested parameter objects, resolved with their parent.
 _NESTED = {"CameraConfig": ("bursts",), "DrydenTurbulence": ("params",)}
-
-
-def per_run(value, batch: int, name: str) -> np.ndarray:
-    """``value`` as a contiguous ``(batch,)`` float array (a fresh copy).
-
-    Parameters
-    ----------
-    value : float or array_like of shape ``(batch,)``
-    batch : int
-        Runs in the batch.
-    name : str
-        The parameter's name, for the error message.
-
-    Raises
-    ------
-    ValueError
-        When ``value`` is neither a scalar nor one value per run.
-    """
-    a = np.asarray(value, dtype=float)
-    if a.ndim == 0:
-        return np.full(batch, float(a))
-    if a.shape != (batch,):
-        raise ValueError(
-            f"{name}: allowed: a number or one value per run, shape ({batch},); got shape {a.shape}"
-        )
-    return np.array(a, dtype=float, order="C")
 
 
 def per_run_rows(value, batch: int, width: int, name: str) -> np.ndarray:

@@ -160,6 +160,8 @@ def test_lqg_and_smith_loops_stable_on_every_preset_with_every_bundled_camera(pr
             doc = {"aircraft": {"model": preset}, "sensor": sensor, "controller": ctrl}
             m, note, _ = _analytic(parse_scenario(doc, file=path.name))
             assert note == "" and m.closed_loop_stable, (path.name, ctrl["kind"])
+            # a floor that says "not marginal" (common practice, no source); MIL-F-9490D's 6 dB / 45°
+            # is a requirement on tuned gains, and these are the untuned defaults
             assert m.gain_margin_db > 3.0 and m.phase_margin_deg > 20.0, (path.name, ctrl["kind"], m)
 
 

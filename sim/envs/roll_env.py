@@ -150,8 +150,7 @@ class RollHoldEnv(gym.Env):
 
     def step(self, action):
         st = self._stepper
-        x = action[0] if isinstance(action, np.ndarray) and action.shape == (1,) else action
-        a = min(max(float(np.asarray(x, dtype=float).reshape(1)[0]), -1.0), 1.0)  # NaN stays NaN
+        a = min(max(float(np.asarray(action, dtype=float).reshape(1)[0]), -1.0), 1.0)  # NaN stays NaN
         obs = st.advance(np.array([a * self.action_scale_rad]))
         self._tick += 1
         k = min(self._tick * self._every, self.n_steps)  # the run's local step (never restarted)

@@ -126,7 +126,8 @@ class RollHoldVectorEnv(gym.vector.VectorEnv):
         reward = step_reward(bank, cmd, a, self._prev, self.bank_limit_rad)
         term = (np.abs(bank) > self.bank_limit_rad) | ~st.alive
         reward = np.where(term, reward - RewardWeights.termination * (self.n_ticks - self._tick), reward)
-        trunc = st.finished & ~term
+        finished = st.finished
+        trunc = finished & ~term
         self._prev = a
         if any_ended:
             rows = ended.nonzero()[0]
@@ -141,7 +142,7 @@ class RollHoldVectorEnv(gym.vector.VectorEnv):
             term[rows] = False
             trunc[rows] = False
         # members at the end of their episode see their last reading, one tick older
-        over = st.finished & ~ended if any_ended else st.finished
+        over = finished & ~ended  # (a restarted member is not at its end)
         if over.any():
             aged = aged_observation(self._last, k * st.setup.dt, cmd)
             nxt = aged if nxt is None else _merge(over, aged, nxt)
