@@ -116,20 +116,26 @@ def outlier_offsets(u_hit: np.ndarray, u_size: np.ndarray, prob, size) -> np.nda
     return np.where(hit, sign * mag * column(size), 0.0)
 
 
+#: Steps at or below this (rad) round nothing measurable; they are no rounding, so ``x / step``
+#: cannot overflow (a step of 1e-320 made readings infinite, hence lost frames).
+_NO_ROUNDING_RAD = 1e-12
+
+
 def quantize(x: np.ndarray, step) -> np.ndarray:
-    """Round to the nearest multiple of ``step`` (no-op where ``step <= 0``).
+    """Round to the nearest multiple of ``step`` (no-op where ``step <= 1e-12`` rad).
 
     ``step`` is a float or an array that broadcasts against ``x`` (per-run values).
     """
     if isinstance(step, float | int):  # np.rint rounds half to even, as np.round does
-        return x if step <= 0 else np.rint(x / step) * step
+        return x if step <= _NO_ROUNDING_RAD else np.rint(x / step) * step
     s = np.asarray(step, dtype=float)
     if s.ndim == 0:
-        return x if s <= 0 else np.rint(x / s) * s
-    if not np.any(s > 0):
+        return x if s <= _NO_ROUNDING_RAD else np.rint(x / s) * s
+    rounds = s > _NO_ROUNDING_RAD
+    if not np.any(rounds):
         return x
-    with np.errstate(divide="ignore", invalid="ignore"):
-        return np.where(s > 0, np.rint(x / s) * s, x)
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        return np.where(rounds, np.rint(x / s) * s, x)
 
 
 def class_centres(width: float, range_: float) -> np.ndarray:

@@ -109,6 +109,20 @@ def test_quantizer_bias_on_held_angle():
         assert e.std() < 1e-12
 
 
+@pytest.mark.parametrize("step", [1e-320, np.array([1e-320, 0.0, 0.5])])
+def test_vanishing_quantization_step_is_no_rounding(step):
+    """Regression (found by fuzzing): x / 1e-320 overflowed, the reading became infinite and the
+    frame was lost. A step that small rounds nothing and must leave the reading as it is."""
+    import warnings
+
+    x = np.array([0.3, -1.2, 2.6])
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")  # no overflow warning either
+        got = stages.quantize(x, step)
+    want = x if np.ndim(step) == 0 else np.array([0.3, -1.2, 2.5])
+    assert_array_equal(got, want)
+
+
 def test_classifier_best_is_rounding_quantizer():
     width, rng_ = np.radians(2.0), np.radians(60.0)
     centres = stages.class_centres(width, rng_)
